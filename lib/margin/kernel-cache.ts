@@ -11,7 +11,7 @@
  * The cache owns a private row-major Float64Array copy of the training rows it was given, so that
  * swaps can move rows physically and every column is computed by one sequential pass.
  */
-import { fillKernelRow, rowSquaredNorms, validateKernel } from './kernel';
+import { fillKernelRow, fillQColumn, rowSquaredNorms, validateKernel } from './kernel';
 import type { DenseRows, KernelSpec } from './types';
 import { EngineInputError } from './types';
 
@@ -52,6 +52,8 @@ export class KernelColumnCache {
   private readonly sq: Float64Array | null;
   private readonly y: Int8Array;
   private readonly float32: boolean;
+  /** Dot products of the column being computed. */
+  private readonly scratch: Float64Array;
   private readonly columns: (QColumn | null)[];
   private readonly lens: Int32Array;
   /** Doubly linked circular LRU list over positions; node l is the list head. */
@@ -79,8 +81,9 @@ export class KernelColumnCache {
     const packed: DenseRows = { data: this.x, rows: l, cols: d };
     this.sq = options.kernel.type === 'rbf' ? rowSquaredNorms(packed) : null;
     this.QD = new Float64Array(l);
+    this.scratch = new Float64Array(l);
     for (let p = 0; p < l; p++) {
-      fillKernelRow(this.spec, this.x, p, this.x, d, p, p + 1, this.QD, this.sq, this.sq);
+      fillKernelRow(this.spec, this.x, p, this.x, d, p, p + 1, this.QD, this.sq, this.sq, this.scratch);
     }
     this.columns = new Array<QColumn | null>(l).fill(null);
     this.lens = new Int32Array(l);
@@ -147,16 +150,35 @@ export class KernelColumnCache {
 
   /** out[j] = Qᵢⱼ for j in [from, to). */
   computeColumn(i: number, from: number, to: number, out: QColumn): void {
-    fillKernelRow(this.spec, this.x, i, this.x, this.d, from, to, out, this.sq, this.sq);
-    const y = this.y;
-    const yi = y[i];
-    for (let j = from; j < to; j++) if (y[j] !== yi) out[j] = -out[j];
+    fillQColumn(this.spec, this.x, this.d, i, from, to, out, this.sq, this.y, this.scratch);
     this.stats.kernelEvaluations += to - from;
   }
 
   /** Exchange positions i and j (rows, labels, diagonal and cached entries). */
   swapIndex(i: number, j: number): void {
-    if (i === j) return;
+    this.swapIndices(Int32Array.of(i, j), 1);
+  }
+
+  /**
+   * Apply `count` position swaps (pairs[2t], pairs[2t + 1]) in order. Equivalent to calling LIBSVM's
+   * swap_index for each pair, but the entries of each cached column are permuted in one pass over the
+   * whole list, which keeps that column in the processor cache while it is being permuted.
+   */
+  swapIndices(pairs: Int32Array, count: number): void {
+    for (let t = 0; t < count; t++) {
+      const i = pairs[2 * t];
+      const j = pairs[2 * t + 1];
+      if (i !== j) this.swapHeaders(i, j);
+    }
+    const head = this.l;
+    for (let h = this.next[head]; h !== head; ) {
+      const nextH = this.next[h];
+      this.permuteColumn(h, pairs, count);
+      h = nextH;
+    }
+  }
+
+  private swapHeaders(i: number, j: number): void {
     this.swapData(i, j);
     const { columns, lens } = this;
     if (lens[i] > 0) this.lruDelete(i);
@@ -169,25 +191,29 @@ export class KernelColumnCache {
     lens[j] = tl;
     if (lens[i] > 0) this.lruInsert(i);
     if (lens[j] > 0) this.lruInsert(j);
-    const lo = i < j ? i : j;
-    const hi = i < j ? j : i;
-    const head = this.l;
-    for (let h = this.next[head]; h !== head; ) {
-      const nextH = this.next[h];
-      if (lens[h] > lo) {
-        const col = columns[h] as QColumn;
-        if (lens[h] > hi) {
-          const t = col[lo];
-          col[lo] = col[hi];
-          col[hi] = t;
-        } else {
-          this.lruDelete(h);
-          this.size += lens[h];
-          columns[h] = null;
-          lens[h] = 0;
-        }
+  }
+
+  /** Swap the entries of cached column h for each pair; drop it if it covers only one side of a pair. */
+  private permuteColumn(h: number, pairs: Int32Array, count: number): void {
+    const len = this.lens[h];
+    const col = this.columns[h] as QColumn;
+    for (let t = 0; t < count; t++) {
+      const a = pairs[2 * t];
+      const b = pairs[2 * t + 1];
+      const lo = a < b ? a : b;
+      const hi = a < b ? b : a;
+      if (len <= lo || lo === hi) continue;
+      if (len > hi) {
+        const v = col[lo];
+        col[lo] = col[hi];
+        col[hi] = v;
+      } else {
+        this.lruDelete(h);
+        this.size += len;
+        this.columns[h] = null;
+        this.lens[h] = 0;
+        return;
       }
-      h = nextH;
     }
   }
 

@@ -90,72 +90,151 @@ export function kernelValue(
   }
 }
 
-function fillLinear(A: Floats, d: number, ao: number, B: Floats, from: number, to: number, out: Floats): void {
-  for (let j = from; j < to; j++) {
-    const bo = j * d;
-    let s0 = 0;
-    let s1 = 0;
-    let k = 0;
-    for (; k + 1 < d; k += 2) {
-      s0 += A[ao + k] * B[bo + k];
-      s1 += A[ao + k + 1] * B[bo + k + 1];
-    }
-    if (k < d) s0 += A[ao + k] * B[bo + k];
-    out[j] = s0 + s1;
+/** Four dot products A_i·B_j, j = j0 … j0+3, into out (helper of dotProducts). */
+function dot4(A: Floats, ao: number, B: Floats, d: number, j0: number, out: Float64Array): void {
+  const b0 = j0 * d;
+  const b1 = b0 + d;
+  const b2 = b1 + d;
+  const b3 = b2 + d;
+  let s0 = 0;
+  let s1 = 0;
+  let s2 = 0;
+  let s3 = 0;
+  for (let k = 0; k < d; k++) {
+    const a = A[ao + k];
+    s0 += a * B[b0 + k];
+    s1 += a * B[b1 + k];
+    s2 += a * B[b2 + k];
+    s3 += a * B[b3 + k];
   }
+  out[j0] = s0;
+  out[j0 + 1] = s1;
+  out[j0 + 2] = s2;
+  out[j0 + 3] = s3;
 }
 
-function fillRbf(
-  A: Floats,
-  d: number,
-  ao: number,
-  sqA: number,
-  B: Floats,
-  sqB: Float64Array,
-  gamma: number,
-  from: number,
-  to: number,
-  out: Floats,
-): void {
-  for (let j = from; j < to; j++) {
-    const bo = j * d;
+/**
+ * out[j] = A_i·B_j for j in [from, to), where A_i starts at offset ao of A. Eight rows of B are
+ * processed per pass so that each A_i[k] is loaded once for eight products (the loop is bound by
+ * memory traffic and load count, not by arithmetic).
+ */
+export function dotProducts(A: Floats, ao: number, B: Floats, d: number, from: number, to: number, out: Float64Array): void {
+  let j = from;
+  for (; j + 7 < to; j += 8) {
+    const b0 = j * d;
+    const b1 = b0 + d;
+    const b2 = b1 + d;
+    const b3 = b2 + d;
+    const b4 = b3 + d;
+    const b5 = b4 + d;
+    const b6 = b5 + d;
+    const b7 = b6 + d;
     let s0 = 0;
     let s1 = 0;
-    let k = 0;
-    for (; k + 1 < d; k += 2) {
-      s0 += A[ao + k] * B[bo + k];
-      s1 += A[ao + k + 1] * B[bo + k + 1];
+    let s2 = 0;
+    let s3 = 0;
+    let s4 = 0;
+    let s5 = 0;
+    let s6 = 0;
+    let s7 = 0;
+    for (let k = 0; k < d; k++) {
+      const a = A[ao + k];
+      s0 += a * B[b0 + k];
+      s1 += a * B[b1 + k];
+      s2 += a * B[b2 + k];
+      s3 += a * B[b3 + k];
+      s4 += a * B[b4 + k];
+      s5 += a * B[b5 + k];
+      s6 += a * B[b6 + k];
+      s7 += a * B[b7 + k];
     }
-    if (k < d) s0 += A[ao + k] * B[bo + k];
-    let dist2 = sqA + sqB[j] - 2 * (s0 + s1);
-    if (dist2 < 0) dist2 = 0;
-    out[j] = Math.exp(-gamma * dist2);
+    out[j] = s0;
+    out[j + 1] = s1;
+    out[j + 2] = s2;
+    out[j + 3] = s3;
+    out[j + 4] = s4;
+    out[j + 5] = s5;
+    out[j + 6] = s6;
+    out[j + 7] = s7;
   }
-}
-
-function fillPoly(
-  A: Floats,
-  d: number,
-  ao: number,
-  B: Floats,
-  gamma: number,
-  coef0: number,
-  degree: number,
-  from: number,
-  to: number,
-  out: Floats,
-): void {
-  for (let j = from; j < to; j++) {
+  if (j + 3 < to) {
+    dot4(A, ao, B, d, j, out);
+    j += 4;
+  }
+  for (; j < to; j++) {
     const bo = j * d;
     let s = 0;
     for (let k = 0; k < d; k++) s += A[ao + k] * B[bo + k];
-    out[j] = Math.pow(gamma * s + coef0, degree);
+    out[j] = s;
+  }
+}
+
+// exp(x) for x ≤ 0 by table-driven range reduction (Tang, ACM TOMS 15(2), 1989): x = (n/64)·ln 2 + r,
+// |r| ≤ ln 2 / 128, exp(x) = 2^(−q) · 2^(m/64) · p(r) with a degree-6 Taylor polynomial p. The
+// Cody–Waite split of ln 2 (fdlibm's ln2_hi / ln2_lo) keeps r accurate. Measured against Math.exp:
+// relative difference ≤ 4e-16 on [−708, 0] (test/margin/kernel.test.ts). Constant tables only.
+const EXP_TABLE = Float64Array.from({ length: 64 }, (_, m) => Math.pow(2, m / 64));
+const POW2_NEG = Float64Array.from({ length: 1024 }, (_, q) => Math.pow(2, -q));
+const INV_LN2_64 = 64 / Math.LN2;
+const LN2_64_HI = 6.9314718036912381649e-1 / 64;
+const LN2_64_LO = 1.90821492927058770002e-10 / 64;
+
+/** exp(x) for x ≤ 0 (falls back to Math.exp below −708, where results are subnormal or 0). */
+export function expNonPositive(x: number): number {
+  if (!(x >= -708)) return Math.exp(x);
+  const nf = Math.round(x * INV_LN2_64);
+  const r = x - nf * LN2_64_HI - nf * LN2_64_LO;
+  const n = -nf;
+  const q = (n + 63) >> 6;
+  const p = 1 + r * (1 + r * (0.5 + r * (1 / 6 + r * (1 / 24 + r * (1 / 120 + r * (1 / 720))))));
+  return p * EXP_TABLE[(q << 6) - n] * POW2_NEG[q];
+}
+
+/**
+ * Turn dot products into kernel values: out[j] = sign_j · K from dots[j] (j in [from, to)), where
+ * sign_j = +1 unless `y` is given, then y[j]·yi (the Q-matrix sign). `sqA` is ‖A_i‖² (RBF only).
+ */
+function finishKernelRow(
+  spec: KernelSpec,
+  dots: Float64Array,
+  sqA: number,
+  sqB: Float64Array | null,
+  from: number,
+  to: number,
+  out: Floats,
+  y: Int8Array | null,
+  yi: number,
+): void {
+  if (spec.type === 'rbf') {
+    if (!sqB) throw new EngineInputError('RBF kernel rows need squared row norms');
+    const gamma = spec.gamma;
+    if (y === null) {
+      for (let j = from; j < to; j++) {
+        const dist2 = sqA + sqB[j] - 2 * dots[j];
+        out[j] = expNonPositive(-gamma * (dist2 > 0 ? dist2 : 0));
+      }
+    } else {
+      for (let j = from; j < to; j++) {
+        const dist2 = sqA + sqB[j] - 2 * dots[j];
+        const v = expNonPositive(-gamma * (dist2 > 0 ? dist2 : 0));
+        out[j] = y[j] === yi ? v : -v;
+      }
+    }
+  } else if (spec.type === 'poly') {
+    const { gamma, coef0, degree } = spec;
+    for (let j = from; j < to; j++) {
+      const v = Math.pow(gamma * dots[j] + coef0, degree);
+      out[j] = y === null || y[j] === yi ? v : -v;
+    }
+  } else {
+    for (let j = from; j < to; j++) out[j] = y === null || y[j] === yi ? dots[j] : -dots[j];
   }
 }
 
 /**
  * out[j] = K(A row i, B row j) for j in [from, to). A and B are raw row-major arrays with d columns;
- * sqA / sqB are their squared row norms (needed for RBF only, may be null otherwise).
+ * sqA / sqB are their squared row norms (needed for RBF only, may be null otherwise). `scratch`
+ * (length ≥ to) holds the dot products; it may be omitted when `out` is a Float64Array.
  */
 export function fillKernelRow(
   spec: KernelSpec,
@@ -168,20 +247,31 @@ export function fillKernelRow(
   out: Floats,
   sqA: Float64Array | null,
   sqB: Float64Array | null,
+  scratch: Float64Array | null = null,
 ): void {
-  const ao = i * d;
-  switch (spec.type) {
-    case 'linear':
-      fillLinear(A, d, ao, B, from, to, out);
-      return;
-    case 'rbf':
-      if (!sqA || !sqB) throw new EngineInputError('fillKernelRow: RBF needs squared row norms');
-      fillRbf(A, d, ao, sqA[i], B, sqB, spec.gamma, from, to, out);
-      return;
-    case 'poly':
-      fillPoly(A, d, ao, B, spec.gamma, spec.coef0, spec.degree, from, to, out);
-      return;
-  }
+  const dots = scratch ?? (out instanceof Float64Array ? out : new Float64Array(to));
+  dotProducts(A, i * d, B, d, from, to, dots);
+  finishKernelRow(spec, dots, sqA ? sqA[i] : 0, sqB, from, to, out, null, 0);
+}
+
+/**
+ * Column i of Q for the symmetric case: out[j] = y[i]·y[j]·K(X_i, X_j) for j in [from, to), with
+ * `scratch` (Float64Array, length ≥ to) for the dot products.
+ */
+export function fillQColumn(
+  spec: KernelSpec,
+  X: Float64Array,
+  d: number,
+  i: number,
+  from: number,
+  to: number,
+  out: Floats,
+  sq: Float64Array | null,
+  y: Int8Array,
+  scratch: Float64Array,
+): void {
+  dotProducts(X, i * d, X, d, from, to, scratch);
+  finishKernelRow(spec, scratch, sq ? sq[i] : 0, sq, from, to, out, y, y[i]);
 }
 
 /** Support vectors (αᵢ > 0) packed contiguously: rows, coefficients αᵢyᵢ and squared norms. */

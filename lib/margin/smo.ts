@@ -98,6 +98,9 @@ class Solver {
   workingJ = -1;
   /** m(α) − M(α) over the active set at the last selection. */
   lastViolation = Infinity;
+  /** Position swaps not yet applied to the kernel cache. */
+  private pendingSwaps = new Int32Array(64);
+  private pendingCount = 0;
 
   constructor(Q: KernelColumnCache, y: Int8Array, C: Float64Array, alpha: Float64Array, rows: Int32Array, eps: number) {
     const l = rows.length;
@@ -242,8 +245,16 @@ class Solver {
     for (let k = 0, l = this.l; k < l; k++) Gbar[k] += factor * Qi[k];
   }
 
+  /** Swap positions i and j in the solver's arrays; the cache's side is queued (see flushSwaps). */
   swapIndex(i: number, j: number): void {
-    this.Q.swapIndex(i, j);
+    if (this.pendingCount * 2 === this.pendingSwaps.length) {
+      const grown = new Int32Array(Math.max(64, this.pendingSwaps.length * 2));
+      grown.set(this.pendingSwaps);
+      this.pendingSwaps = grown;
+    }
+    this.pendingSwaps[2 * this.pendingCount] = i;
+    this.pendingSwaps[2 * this.pendingCount + 1] = j;
+    this.pendingCount++;
     swapInt8(this.y, i, j);
     swapF64(this.G, i, j);
     swapU8(this.alpha_status, i, j);
@@ -251,6 +262,13 @@ class Solver {
     swapF64(this.C, i, j);
     swapI32(this.activeSet, i, j);
     swapF64(this.Gbar, i, j);
+  }
+
+  /** Apply the queued swaps to the kernel cache (rows, diagonal QD and cached columns). */
+  flushSwaps(): void {
+    if (this.pendingCount === 0) return;
+    this.Q.swapIndices(this.pendingSwaps, this.pendingCount);
+    this.pendingCount = 0;
   }
 
   /** Inactive G from Gbar plus the free variables' contributions (LIBSVM's reconstruct_gradient). */
@@ -304,6 +322,7 @@ class Solver {
         this.activeSize--;
       }
     }
+    this.flushSwaps();
   }
 
   /** m(α) = max over I_up of −yₜGₜ, among positions [0, size). */
