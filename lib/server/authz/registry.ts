@@ -1,0 +1,159 @@
+/**
+ * The registry of every server action and route handler in the app.
+ *
+ * Every exported server action (app/actions/*.ts) and every route handler (app/**\/route.ts) is
+ * a public endpoint: anyone can call it with any input. Each one is listed here with who may
+ * call it and whether it changes team data; `defineAction` / `defineRoute` refuse to define an
+ * endpoint that is missing here or declared differently, and test/server/authz-registry.test.ts
+ * scans the folders, fails on anything unlisted, and calls every entry as a stranger, as a
+ * member of another team and as an observer, expecting a refusal and an unchanged database.
+ *
+ * To add an action: create app/actions/<verb-noun>.ts ('use server', one exported async
+ * function that calls a `defineAction(...)` wrapper), add its entry below under the same name,
+ * and add a probe for it in the registry test (valid input aimed at the fixture team's
+ * resources).
+ *
+ * access:
+ *   public     no session needed (the action itself checks a capability, e.g. an invitation token)
+ *   signed-in  any signed-in user; touches no existing team resource except via a capability
+ *   member     any member (lead, reviewer, observer) of the team owning the resource
+ *   reviewer   reviewer or lead of that team
+ *   lead       lead of that team
+ * writes: true when the endpoint changes team-owned data (observers are refused those).
+ */
+
+export type Access = 'public' | 'signed-in' | 'member' | 'reviewer' | 'lead';
+export type HttpMethod = 'GET' | 'POST' | 'PUT' | 'PATCH' | 'DELETE';
+
+export type ActionEntry = {
+  kind: 'action';
+  /** Path from the repository root. */
+  file: string;
+  /** The exported async function of that file. */
+  exportName: string;
+  access: Access;
+  writes: boolean;
+  summary: string;
+};
+
+export type RouteEntry = {
+  kind: 'route';
+  file: string;
+  methods: readonly HttpMethod[];
+  access: Access;
+  writes: boolean;
+  /**
+   * defineRoute: goes through the wrapper. next-auth: the authentication endpoint itself
+   * (CSRF-checked by next-auth; sign-in goes through our throttled `authorize`). static: answers
+   * a constant and reads nothing.
+   */
+  via: 'defineRoute' | 'next-auth' | 'static';
+  summary: string;
+};
+
+export const REGISTRY = {
+  // ── accounts and teams ──
+  completeSetup: {
+    kind: 'action',
+    file: 'app/actions/complete-setup.ts',
+    exportName: 'completeSetup',
+    access: 'public',
+    writes: true,
+    summary: 'First run only: creates the first account and its team (as lead); refused once any account exists.',
+  },
+  signUp: {
+    kind: 'action',
+    file: 'app/actions/sign-up.ts',
+    exportName: 'signUp',
+    access: 'public',
+    writes: true,
+    summary: 'Creates an account from a valid invitation link and joins its team with the invited role.',
+  },
+  createTeam: {
+    kind: 'action',
+    file: 'app/actions/create-team.ts',
+    exportName: 'createTeam',
+    access: 'signed-in',
+    writes: true,
+    summary: 'Creates a new team with the caller as its lead.',
+  },
+  switchTeam: {
+    kind: 'action',
+    file: 'app/actions/switch-team.ts',
+    exportName: 'switchTeam',
+    access: 'member',
+    writes: false,
+    summary: "Makes one of the caller's teams the current one (a preference on the caller's own account).",
+  },
+  acceptInvitation: {
+    kind: 'action',
+    file: 'app/actions/accept-invitation.ts',
+    exportName: 'acceptInvitation',
+    access: 'signed-in',
+    writes: true,
+    summary: 'The signed-in user joins a team through a valid invitation link.',
+  },
+  // ── team management (lead) ──
+  createInvitation: {
+    kind: 'action',
+    file: 'app/actions/create-invitation.ts',
+    exportName: 'createInvitation',
+    access: 'lead',
+    writes: true,
+    summary: 'Creates a single-use, expiring invitation link for a role.',
+  },
+  revokeInvitation: {
+    kind: 'action',
+    file: 'app/actions/revoke-invitation.ts',
+    exportName: 'revokeInvitation',
+    access: 'lead',
+    writes: true,
+    summary: 'Revokes a pending invitation.',
+  },
+  changeRole: {
+    kind: 'action',
+    file: 'app/actions/change-role.ts',
+    exportName: 'changeRole',
+    access: 'lead',
+    writes: true,
+    summary: "Changes a member's role (a team keeps at least one lead).",
+  },
+  removeMember: {
+    kind: 'action',
+    file: 'app/actions/remove-member.ts',
+    exportName: 'removeMember',
+    access: 'lead',
+    writes: true,
+    summary: 'Removes a member from the team (a team keeps at least one lead).',
+  },
+
+  // ── route handlers ──
+  nextAuth: {
+    kind: 'route',
+    file: 'app/api/auth/[...nextauth]/route.ts',
+    methods: ['GET', 'POST'],
+    access: 'public',
+    writes: true,
+    via: 'next-auth',
+    summary: 'Sign-in (throttled credentials check), session, CSRF token and sign-out, served by next-auth.',
+  },
+  health: {
+    kind: 'route',
+    file: 'app/api/health/route.ts',
+    methods: ['GET'],
+    access: 'public',
+    writes: false,
+    via: 'static',
+    summary: 'Liveness: answers {status: "ok"}; reads nothing.',
+  },
+} as const satisfies Record<string, ActionEntry | RouteEntry>;
+
+export type EndpointName = keyof typeof REGISTRY;
+export type ActionName = { [K in EndpointName]: (typeof REGISTRY)[K] extends { kind: 'action' } ? K : never }[EndpointName];
+export type RouteName = { [K in EndpointName]: (typeof REGISTRY)[K] extends { kind: 'route' } ? K : never }[EndpointName];
+
+export type RegistryEntry = ActionEntry | RouteEntry;
+
+export function registryEntries(): Array<[EndpointName, RegistryEntry]> {
+  return Object.entries(REGISTRY) as Array<[EndpointName, RegistryEntry]>;
+}
