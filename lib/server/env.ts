@@ -38,6 +38,20 @@ const variables = z.object({
     .default('info'),
   /** Local state: uploads, the development secret, the demo's planted-error list. */
   BORDERLINE_DATA_DIR: z.string().min(1).default('./data'),
+  /** Session lifetime in hours, counted from sign-in (not extended by activity). */
+  BORDERLINE_SESSION_HOURS: z.coerce
+    .number({ error: 'must be a whole number of hours' })
+    .int({ error: 'must be a whole number of hours' })
+    .min(1, { error: 'must be at least 1 (hour)' })
+    .max(168, { error: 'must be at most 168 (one week)' })
+    .default(8),
+  /** Reverse proxies in front of the app that append to X-Forwarded-For (sign-in throttling by address). */
+  BORDERLINE_PROXY_HOPS: z.coerce
+    .number({ error: 'must be a whole number' })
+    .int({ error: 'must be a whole number' })
+    .min(0, { error: 'must be 0 or more' })
+    .max(5, { error: 'must be at most 5' })
+    .default(0),
 });
 
 export type RawEnv = z.infer<typeof variables>;
