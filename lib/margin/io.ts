@@ -16,7 +16,7 @@ import { createReadStream } from 'node:fs';
 import { open } from 'node:fs/promises';
 import { createInterface } from 'node:readline';
 import { parse, CsvError } from 'csv-parse';
-import type { LabelledData } from './model';
+import type { LabelledData } from './types';
 
 export type InputFormat = 'csv' | 'jsonl';
 

@@ -94,3 +94,12 @@ export class EngineInputError extends Error {
     this.name = 'EngineInputError';
   }
 }
+
+/** Labelled samples as the fit API takes them: one id, one class label and one row of X per sample. */
+export interface LabelledData {
+  readonly ids: readonly string[];
+  readonly labels: readonly string[];
+  readonly X: DenseRows;
+  /** Feature names (CSV header) or `f1 … fd` (JSON Lines); informational. */
+  readonly featureNames?: readonly string[];
+}
