@@ -55,7 +55,10 @@ export interface SmoOptions extends SolverControl {
   readonly cacheBytes?: number;
   /** Maximum number of pair updates. Default max(10 000 000, 100·n) like LIBSVM. */
   readonly maxIterations?: number;
-  /** Previous α: clipped to [0, Cᵢ], then Σαᵢyᵢ = 0 is repaired (see `repairWarmStart`). */
+  /**
+   * Previous α (one per row): clipped to [0, Cᵢ], then Σαᵢyᵢ = 0 is repaired by lowering α in the
+   * heavier class, largest functional margin first (see `Solver.repairEquality`).
+   */
   readonly warmStart?: Float64Array;
   /**
    * Storage of cached Q columns. Default: float64 when the whole Q matrix fits into the cache,
@@ -141,6 +144,35 @@ class Solver {
         const Ci = C[i];
         for (let j = 0; j < l; j++) Gbar[j] += Ci * Qi[j];
       }
+    }
+  }
+
+  /**
+   * Restore Σαᵢyᵢ = 0 after a clipped warm start, using the gradient: the excess is removed from the
+   * heavier class only, taking α away first from the samples of that class with the largest Gᵢ (the
+   * largest functional margin, where the objective gains most from a smaller αᵢ; within one class
+   * this order does not depend on b). G and Gbar are updated for every changed αᵢ.
+   */
+  repairEquality(): void {
+    const { l, y, alpha, G } = this;
+    let s = 0;
+    for (let i = 0; i < l; i++) s += y[i] * alpha[i];
+    if (s === 0) return;
+    const heavy = s > 0 ? 1 : -1;
+    let excess = Math.abs(s);
+    const order: number[] = [];
+    for (let i = 0; i < l; i++) if (y[i] === heavy && alpha[i] > 0) order.push(i);
+    order.sort((u, v) => G[v] - G[u]);
+    for (const i of order) {
+      if (excess <= 0) break;
+      const take = Math.min(alpha[i], excess);
+      excess -= take;
+      const wasUpper = this.alpha_status[i] === UPPER_BOUND;
+      alpha[i] = take === alpha[i] ? 0 : alpha[i] - take;
+      const Qi = this.Q.getQ(i, l);
+      for (let k = 0; k < l; k++) G[k] -= take * Qi[k];
+      this.updateAlphaStatus(i);
+      if (wasUpper && this.alpha_status[i] !== UPPER_BOUND) this.moveGbar(i, -this.C[i]);
     }
   }
 
@@ -239,7 +271,7 @@ class Solver {
     if (uj !== (this.alpha_status[j] === UPPER_BOUND)) this.moveGbar(j, uj ? -this.C[j] : this.C[j]);
   }
 
-  private moveGbar(i: number, factor: number): void {
+  moveGbar(i: number, factor: number): void {
     const Qi = this.Q.getQ(i, this.l);
     const Gbar = this.Gbar;
     for (let k = 0, l = this.l; k < l; k++) Gbar[k] += factor * Qi[k];
@@ -576,41 +608,16 @@ function prepare(problem: BinaryProblem, options: SmoOptions): Prepared {
 }
 
 /**
- * Feasible starting point from a previous α (one entry per training row): clip to [0, Cᵢ], then
- * restore Σαᵢyᵢ = 0 by lowering the heavier class only — every α of that class is reduced by the same
- * amount λ (stopping at 0), with λ chosen so that both classes carry the same total. Zeros stay zero
- * and the lighter class is untouched. Returns the α of the given rows.
+ * Previous α (one entry per training row) clipped to [0, Cᵢ] for the given rows (NaN and negative
+ * values become 0). The equality Σαᵢyᵢ = 0 is restored afterwards by the solver (`repairEquality`).
  */
-export function repairWarmStart(warm: Float64Array, y: Int8Array, upper: Float64Array, rows: Int32Array): Float64Array {
-  if (warm.length !== y.length) throw new EngineInputError(`warmStart has ${warm.length} entries for ${y.length} rows`);
-  const l = rows.length;
-  const a = new Float64Array(l);
-  let s = 0;
-  for (let p = 0; p < l; p++) {
-    const r = rows[p];
-    const v = warm[r];
-    a[p] = v > 0 ? Math.min(v, upper[r]) : 0; // NaN and negatives become 0
-    s += a[p] * y[r];
+export function clipWarmStart(warm: Float64Array, upper: Float64Array, rows: Int32Array): Float64Array {
+  if (warm.length !== upper.length) throw new EngineInputError(`warmStart has ${warm.length} entries for ${upper.length} rows`);
+  const a = new Float64Array(rows.length);
+  for (let p = 0; p < rows.length; p++) {
+    const v = warm[rows[p]];
+    a[p] = v > 0 ? Math.min(v, upper[rows[p]]) : 0;
   }
-  if (s === 0) return a;
-  const heavy = s > 0 ? 1 : -1;
-  const excess = Math.abs(s);
-  const vals: number[] = [];
-  for (let p = 0; p < l; p++) if (y[rows[p]] === heavy && a[p] > 0) vals.push(a[p]);
-  vals.sort((u, v) => u - v);
-  // Find λ with Σ min(aₖ, λ) = excess over the heavy class (sorted ascending).
-  let removedBelow = 0;
-  let lambda = vals.length > 0 ? vals[vals.length - 1] : 0;
-  for (let k = 0; k < vals.length; k++) {
-    const remaining = vals.length - k;
-    const candidate = (excess - removedBelow) / remaining;
-    if (candidate <= vals[k]) {
-      lambda = candidate;
-      break;
-    }
-    removedBelow += vals[k];
-  }
-  for (let p = 0; p < l; p++) if (y[rows[p]] === heavy) a[p] = Math.max(0, a[p] - lambda);
   return a;
 }
 
@@ -710,7 +717,7 @@ export function solveSmo(problem: BinaryProblem, options: SmoOptions): BinarySol
   const { rows, upper } = prep;
   const l = rows.length;
   if (options.signal?.aborted) throw new FitCancelledError();
-  const alpha0 = options.warmStart ? repairWarmStart(options.warmStart, problem.y, upper, rows) : new Float64Array(l);
+  const alpha0 = options.warmStart ? clipWarmStart(options.warmStart, upper, rows) : new Float64Array(l);
   const precision = options.cachePrecision ?? (l * l * 8 <= prep.cacheBytes ? 'float64' : 'float32');
   const cache = new KernelColumnCache(problem.X, problem.y, rows, {
     kernel: options.kernel,
@@ -725,6 +732,7 @@ export function solveSmo(problem: BinaryProblem, options: SmoOptions): BinarySol
   }
   const solver = new Solver(cache, yPos, Cpos, alpha0, Int32Array.from(rows), prep.tol);
   solver.initGradient(options.signal);
+  if (options.warmStart) solver.repairEquality();
   const { iterations, converged } = solver.solve({
     ...options,
     maxIterations: prep.maxIterations,
