@@ -201,5 +201,10 @@ export const AUDIT_ACTIONS = [
   'invitation.created',
   'invitation.revoked',
   'invitation.accepted',
+  // Data area (imports, pipeline tokens): lib/server/import, lib/server/tokens.ts
+  'import.applied',
+  'import.failed',
+  'token.created',
+  'token.revoked',
 ] as const;
 export type AuditAction = (typeof AUDIT_ACTIONS)[number];
