@@ -59,8 +59,9 @@ export class KernelColumnCache {
   /** Doubly linked circular LRU list over positions; node l is the list head. */
   private readonly prev: Int32Array;
   private readonly next: Int32Array;
-  /** Remaining budget in column entries. */
+  /** Remaining budget in column entries (counted by the capacity of stored arrays). */
   private size: number;
+  private readonly bytesPer: number;
 
   constructor(X: DenseRows, y: Int8Array, rows: Int32Array, options: KernelCacheOptions) {
     validateKernel(options.kernel);
@@ -89,8 +90,9 @@ export class KernelColumnCache {
     this.lens = new Int32Array(l);
     this.prev = new Int32Array(l + 1).fill(l);
     this.next = new Int32Array(l + 1).fill(l);
-    const bytesPer = this.float32 ? 4 : 8;
-    this.size = Math.max(Math.floor(options.cacheBytes / bytesPer), 2 * l);
+    this.bytesPer = this.float32 ? 4 : 8;
+    // At least 3 full columns: a column just returned is never evicted by the next request (see getQ).
+    this.size = Math.max(Math.floor(options.cacheBytes / this.bytesPer), 3 * l);
   }
 
   /** Entries currently cached (for tests). */
@@ -98,6 +100,13 @@ export class KernelColumnCache {
     let total = 0;
     for (let h = this.next[this.l]; h !== this.l; h = this.next[h]) total += this.lens[h];
     return total;
+  }
+
+  /** Bytes held by cached columns (capacity of their arrays). */
+  cachedBytes(): number {
+    let total = 0;
+    for (let h = this.next[this.l]; h !== this.l; h = this.next[h]) total += (this.columns[h] as QColumn).length;
+    return total * this.bytesPer;
   }
 
   private lruDelete(h: number): void {
@@ -113,39 +122,67 @@ export class KernelColumnCache {
     this.prev[head] = h;
   }
 
-  private evictOne(): void {
+  /** Drop the least recently used column; returns its array (null if nothing is cached). */
+  private evictOne(): QColumn | null {
     const old = this.next[this.l];
+    if (old === this.l) return null;
+    const col = this.columns[old] as QColumn;
     this.lruDelete(old);
-    this.size += this.lens[old];
+    this.size += col.length;
     this.columns[old] = null;
     this.lens[old] = 0;
+    return col;
+  }
+
+  /**
+   * Storage for a column of `len` entries: an evicted array of capacity len … 1.25·len is reused,
+   * otherwise a new one is allocated (so the cap holds without waiting for garbage collection).
+   */
+  private takeStorage(len: number): QColumn {
+    let reuse: QColumn | null = null;
+    while (this.size < len) {
+      const ev = this.evictOne();
+      if (ev === null) break;
+      if (reuse === null && ev.length >= len && ev.length - len <= len >> 2) reuse = ev;
+    }
+    if (reuse !== null) {
+      while (this.size < reuse.length && this.evictOne() !== null);
+      this.size -= reuse.length;
+      return reuse;
+    }
+    this.size -= len;
+    return this.float32 ? new Float32Array(len) : new Float64Array(len);
   }
 
   /**
    * Column i of Q for positions [0, len). The returned array may be longer than len; only the
-   * first len entries are meaningful. The array stays valid (it is never reused after eviction).
+   * first len entries are meaningful. Its storage is recycled once the column is evicted; because the
+   * budget holds at least three full columns and the column becomes most recently used, it stays valid
+   * through the next getQ call (LIBSVM relies on the same: Q_i survives fetching Q_j).
    */
   getQ(i: number, len: number): QColumn {
     const have = this.lens[i];
-    let col = this.columns[i];
+    const col = this.columns[i];
     if (have > 0) this.lruDelete(i);
     if (col !== null && have >= len) {
       this.stats.hits++;
       this.lruInsert(i);
       return col;
     }
-    const more = len - have;
-    while (this.size < more) this.evictOne();
-    const fresh: QColumn = this.float32 ? new Float32Array(len) : new Float64Array(len);
-    if (col !== null && have > 0) fresh.set(col.subarray(0, have));
-    this.size -= more;
-    this.computeColumn(i, have, len, fresh);
-    col = fresh;
-    this.columns[i] = col;
+    this.stats.misses++;
+    let store: QColumn;
+    if (col !== null && col.length >= len) {
+      store = col; // capacity suffices: fill the tail in place
+    } else {
+      if (col !== null) this.size += col.length; // old storage is released after copying its prefix
+      store = this.takeStorage(len);
+      if (col !== null && have > 0) store.set(col.subarray(0, have));
+    }
+    this.computeColumn(i, have, len, store);
+    this.columns[i] = store;
     this.lens[i] = len;
     this.lruInsert(i);
-    this.stats.misses++;
-    return col;
+    return store;
   }
 
   /** out[j] = Qᵢⱼ for j in [from, to). */
@@ -209,7 +246,7 @@ export class KernelColumnCache {
         col[hi] = v;
       } else {
         this.lruDelete(h);
-        this.size += len;
+        this.size += col.length;
         this.columns[h] = null;
         this.lens[h] = 0;
         return;

@@ -200,12 +200,21 @@ describe('KernelColumnCache', () => {
     expect(cache.stats.hits).toBe(1);
     cache.getQ(5, n); // evicts 1
     expect(cache.cachedEntries()).toBeLessThanOrEqual(5 * n);
+    expect(cache.cachedBytes()).toBeLessThanOrEqual(5 * n * 4);
     cache.getQ(0, n);
     expect(cache.stats.hits).toBe(2);
     cache.getQ(1, n);
     expect(cache.stats.misses).toBe(7);
     const col = cache.getQ(3, n);
     for (let j = 0; j < n; j++) expect(col[j]).toBeCloseTo(directQ(spec, X, y, 3, j), 6); // float32 storage
+    // many more requests of mixed lengths: the cap holds and every column is right (storage is recycled)
+    for (let t = 0; t < 200; t++) {
+      const i = (t * 7) % n;
+      const len = 10 + ((t * 13) % (n - 10));
+      const c = cache.getQ(i, len);
+      expect(cache.cachedBytes()).toBeLessThanOrEqual(5 * n * 4);
+      for (let j = 0; j < len; j++) expect(c[j]).toBeCloseTo(directQ(spec, X, y, i, j), 6);
+    }
   });
 
   it('extends a shorter cached column by computing only the tail', () => {
