@@ -178,13 +178,15 @@ const POW2_NEG = Float64Array.from({ length: 1024 }, (_, q) => Math.pow(2, -q));
 const INV_LN2_64 = 64 / Math.LN2;
 const LN2_64_HI = 6.9314718036912381649e-1 / 64;
 const LN2_64_LO = 1.90821492927058770002e-10 / 64;
+/** 1.5·2⁵²: (t + ROUNDER) − ROUNDER rounds t to the nearest integer for |t| < 2⁵¹ (cheaper than Math.round). */
+const ROUNDER = 6755399441055744;
 
 /** exp(x) for x ≤ 0 (falls back to Math.exp below −708, where results are subnormal or 0). */
 export function expNonPositive(x: number): number {
   if (!(x >= -708)) return Math.exp(x);
-  const nf = Math.round(x * INV_LN2_64);
+  const nf = x * INV_LN2_64 + ROUNDER - ROUNDER;
   const r = x - nf * LN2_64_HI - nf * LN2_64_LO;
-  const n = -nf;
+  const n = -nf | 0;
   const q = (n + 63) >> 6;
   const p = 1 + r * (1 + r * (0.5 + r * (1 / 6 + r * (1 / 24 + r * (1 / 120 + r * (1 / 720))))));
   return p * EXP_TABLE[(q << 6) - n] * POW2_NEG[q];
@@ -216,18 +218,15 @@ function finishKernelRow(
     } else {
       for (let j = from; j < to; j++) {
         const dist2 = sqA + sqB[j] - 2 * dots[j];
-        const v = expNonPositive(-gamma * (dist2 > 0 ? dist2 : 0));
-        out[j] = y[j] === yi ? v : -v;
+        // sign by multiplication: labels are mixed, a branch here would be mispredicted half the time
+        out[j] = y[j] * yi * expNonPositive(-gamma * (dist2 > 0 ? dist2 : 0));
       }
     }
   } else if (spec.type === 'poly') {
     const { gamma, coef0, degree } = spec;
-    for (let j = from; j < to; j++) {
-      const v = Math.pow(gamma * dots[j] + coef0, degree);
-      out[j] = y === null || y[j] === yi ? v : -v;
-    }
+    for (let j = from; j < to; j++) out[j] = (y === null ? 1 : y[j] * yi) * Math.pow(gamma * dots[j] + coef0, degree);
   } else {
-    for (let j = from; j < to; j++) out[j] = y === null || y[j] === yi ? dots[j] : -dots[j];
+    for (let j = from; j < to; j++) out[j] = (y === null ? 1 : y[j] * yi) * dots[j];
   }
 }
 
