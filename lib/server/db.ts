@@ -116,3 +116,19 @@ export async function disconnectDb(): Promise<void> {
 export function isUniqueViolation(error: unknown): boolean {
   return error instanceof Prisma.PrismaClientKnownRequestError && error.code === 'P2002';
 }
+
+/**
+ * The database's own message behind a Prisma error (e.g. a trigger's RAISE text), when the driver
+ * adapter reported one. Prisma's message may name a different category (SQLite trigger aborts
+ * surface as P2003 "Foreign key constraint violated"), so check this for the real cause.
+ */
+export function driverErrorMessage(error: unknown): string | undefined {
+  if (!(error instanceof Prisma.PrismaClientKnownRequestError)) return undefined;
+  const adapterError = error.meta?.driverAdapterError;
+  if (typeof adapterError !== 'object' || adapterError === null || !('cause' in adapterError)) return undefined;
+  const cause = adapterError.cause;
+  if (typeof cause === 'object' && cause !== null && 'originalMessage' in cause && typeof cause.originalMessage === 'string') {
+    return cause.originalMessage;
+  }
+  return undefined;
+}

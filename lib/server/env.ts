@@ -21,7 +21,9 @@ export const DEFAULT_DATABASE_URL = 'file:./data/borderline.db';
 
 /** Every environment variable the server reads. Add new ones here. */
 const variables = z.object({
-  NODE_ENV: z.enum(['development', 'production', 'test']).default('development'),
+  NODE_ENV: z
+    .enum(['development', 'production', 'test'], { error: 'must be development, production or test' })
+    .default('development'),
   /** file:<path> → embedded SQLite (default); postgresql://… or postgres://… → PostgreSQL. */
   DATABASE_URL: z.string().default(DEFAULT_DATABASE_URL),
   /** Signs session tokens. Required in production; generated into <data dir>/.secret otherwise. */

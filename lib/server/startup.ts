@@ -6,7 +6,7 @@
 // unwritable SQLite path, failed or edited migration); `exitOnStartupError` prints it without
 // a stack trace and exits non-zero.
 
-import { mkdirSync } from 'node:fs';
+import { existsSync, mkdirSync, statSync } from 'node:fs';
 import { dirname, relative } from 'node:path';
 import Database from 'better-sqlite3';
 import pg from 'pg';
@@ -113,6 +113,12 @@ function checkSqlite(config: Extract<DatabaseConfig, { provider: 'sqlite' }>): v
     throw new StartupError(
       'unreachable',
       `Cannot create the folder ${folder} for the SQLite database (${FS_REASONS[code] ?? firstLine(error)}); check DATABASE_URL.`,
+    );
+  }
+  if (existsSync(config.file) && statSync(config.file).isDirectory()) {
+    throw new StartupError(
+      'unreachable',
+      `Cannot use the SQLite database ${config.file} (the path is a folder, not a file); check DATABASE_URL.`,
     );
   }
   let conn: Database.Database | undefined;
