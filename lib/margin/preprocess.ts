@@ -84,8 +84,9 @@ export function applyPreprocessor(p: Preprocessor, X: DenseRows): DenseRows {
     for (let i = 0; i < n; i++) {
       let s = 0;
       for (let j = 0; j < d; j++) s += data[i * d + j] * data[i * d + j];
-      const inv = s > 0 ? 1 / Math.sqrt(s) : 0;
-      for (let j = 0; j < d; j++) out[i * d + j] = data[i * d + j] * inv;
+      if (s === 0) continue; // stays all-zero
+      const norm = Math.sqrt(s);
+      for (let j = 0; j < d; j++) out[i * d + j] = data[i * d + j] / norm;
     }
   } else {
     const mean = p.mean as Float64Array;
