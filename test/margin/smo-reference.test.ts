@@ -15,7 +15,10 @@ import type { BinaryProblem, BinarySolution, KernelSpec } from '@/lib/margin/typ
 import { binarySubset, loadBreastCancer, loadIris, standardise } from './datasets';
 import {
   makeTempDir,
+  parseLiblinearOutput,
   parseSvmTrainOutput,
+  readLiblinearModel,
+  runLiblinearTrain,
   readLibsvmModel,
   requireTool,
   runSvmTrain,
@@ -213,5 +216,31 @@ describe("Fisher's Iris class pairs against svm-train", () => {
     expect(ours.dualityGap).toBeLessThan(1e-6);
     expect(refGap).toBeGreaterThan(10 * ours.dualityGap);
     expect(ours.dualObjective).toBeGreaterThanOrEqual(ref.modelDual - 1e-9); // ours is the better dual point
+  });
+});
+
+describe('reference tools (shared with the LIBLINEAR comparisons)', () => {
+  it('writes a data file liblinear-train reads and parses its model and output', () => {
+    requireTool('liblinear-train'); // fails (does not skip) with an install hint when LIBLINEAR is missing
+    // Iris setosa vs versicolor is linearly separable (textbook fact), so a dual CD fit with a bias
+    // feature classifies all 100 rows correctly.
+    const p = binarySubset(iris, 0, [0, 1]);
+    const data = `${tmp.dir}/liblinear.txt`;
+    const modelFile = `${tmp.dir}/liblinear.model`;
+    writeSparseFile(data, p.X, p.y);
+    const run = runLiblinearTrain(['-s', '3', '-c', '1', '-B', '1', '-e', '0.001'], data, modelFile);
+    const log = parseLiblinearOutput(run.stdout);
+    expect(log.objective).not.toBeNull();
+    expect(log.iterations).toBeGreaterThan(0);
+    const model = readLiblinearModel(modelFile);
+    expect(model.nrFeature).toBe(4);
+    expect(model.bias).toBe(1);
+    expect(model.w.length).toBe(5);
+    const sign = model.labels[0] === 1 ? 1 : -1;
+    for (let i = 0; i < p.X.rows; i++) {
+      let f = model.w[4] * model.bias;
+      for (let k = 0; k < 4; k++) f += model.w[k] * p.X.data[i * 4 + k];
+      expect(Math.sign(sign * f)).toBe(p.y[i]);
+    }
   });
 });
