@@ -1,0 +1,173 @@
+/**
+ * Reading a project's samples for the engine.
+ *
+ * Feature vectors never change after a sample is created, so the decoded matrix of a project is
+ * kept in memory (`featureMatrix`) and reused by every refit and every nearest-neighbour lookup;
+ * it is re-read when the project's sample count or newest creation time changes. Code that rewrites
+ * features of existing samples must call `invalidateFeatureCache(projectId)`. The matrix lives in a
+ * SharedArrayBuffer, so handing it to the engine's worker thread does not copy 4·n·d bytes.
+ *
+ * Labels are read per revision: the label of a sample at revision N is its current label, unless a
+ * LabelChange of a later revision exists, in which case it is the `fromLabel` of the earliest such
+ * change. Samples added after revision N are left out.
+ */
+import type { Db, DbTx } from '../db';
+import { decodeFeaturesInto } from '../features';
+
+export interface FeatureMatrix {
+  readonly projectId: string;
+  /** Sample.id per row, ascending. */
+  readonly sampleIds: readonly string[];
+  readonly externalIds: readonly string[];
+  readonly addedRevision: Int32Array;
+  /** row-major rows × cols, backed by a SharedArrayBuffer */
+  readonly X: Float32Array;
+  readonly rows: number;
+  readonly cols: number;
+  readonly rowOf: ReadonlyMap<string, number>;
+  readonly fingerprint: string;
+}
+
+type Cached = { matrix: FeatureMatrix; usedAt: number; bytes: number };
+const store = globalThis as typeof globalThis & { __borderlineFeatureCache?: Map<string, Cached> };
+function cache(): Map<string, Cached> {
+  store.__borderlineFeatureCache ??= new Map();
+  return store.__borderlineFeatureCache;
+}
+
+/** Upper bound of cached feature bytes in this process (least recently used projects go first). */
+export const FEATURE_CACHE_BYTES = 1_200_000_000;
+
+export function invalidateFeatureCache(projectId?: string): void {
+  if (projectId === undefined) cache().clear();
+  else cache().delete(projectId);
+}
+
+async function fingerprintOf(client: Db | DbTx, projectId: string): Promise<{ key: string; count: number }> {
+  const agg = await client.sample.aggregate({ where: { projectId }, _count: { _all: true }, _max: { createdAt: true } });
+  const count = agg._count._all;
+  return { key: `${count}:${agg._max.createdAt?.getTime() ?? 0}`, count };
+}
+
+const PAGE = 5000;
+
+export async function featureMatrix(client: Db | DbTx, projectId: string): Promise<FeatureMatrix> {
+  const fp = await fingerprintOf(client, projectId);
+  const hit = cache().get(projectId);
+  if (hit && hit.matrix.fingerprint === fp.key) {
+    hit.usedAt = Date.now();
+    return hit.matrix;
+  }
+  const project = await client.project.findUnique({ where: { id: projectId }, select: { featureCount: true } });
+  if (!project) throw new Error(`project ${projectId} not found`);
+  const cols = project.featureCount;
+  const capacity = fp.count;
+  const X = new Float32Array(new SharedArrayBuffer(Math.max(4, capacity * cols * 4)));
+  const sampleIds: string[] = [];
+  const externalIds: string[] = [];
+  const added: number[] = [];
+  let cursor: string | undefined;
+  for (;;) {
+    const page = await client.sample.findMany({
+      where: { projectId },
+      orderBy: { id: 'asc' },
+      take: PAGE,
+      ...(cursor ? { cursor: { id: cursor }, skip: 1 } : {}),
+      select: { id: true, externalId: true, features: true, addedRevision: true },
+    });
+    for (const s of page) {
+      const row = sampleIds.length;
+      if (row >= capacity) break; // samples added while reading: the next fingerprint check reloads
+      decodeFeaturesInto(s.features, X, row * cols);
+      sampleIds.push(s.id);
+      externalIds.push(s.externalId);
+      added.push(s.addedRevision);
+    }
+    if (page.length < PAGE || sampleIds.length >= capacity) break;
+    cursor = page[page.length - 1].id;
+  }
+  const rows = sampleIds.length;
+  const matrix: FeatureMatrix = {
+    projectId,
+    sampleIds,
+    externalIds,
+    addedRevision: Int32Array.from(added),
+    X: rows === capacity ? X : X.subarray(0, rows * cols),
+    rows,
+    cols,
+    rowOf: new Map(sampleIds.map((id, i) => [id, i])),
+    fingerprint: rows === capacity ? fp.key : `partial:${Date.now()}`,
+  };
+  const bytes = rows * cols * 4;
+  cache().set(projectId, { matrix, usedAt: Date.now(), bytes });
+  let total = 0;
+  for (const c of cache().values()) total += c.bytes;
+  if (total > FEATURE_CACHE_BYTES) {
+    const byAge = [...cache().entries()].sort((a, b) => a[1].usedAt - b[1].usedAt);
+    for (const [key, c] of byAge) {
+      if (total <= FEATURE_CACHE_BYTES || key === projectId) continue;
+      cache().delete(key);
+      total -= c.bytes;
+    }
+  }
+  return matrix;
+}
+
+/** Labels of every sample at `revision` (samples added later are absent from the map). */
+export async function labelsAtRevision(client: Db | DbTx, projectId: string, revision: number): Promise<Map<string, string>> {
+  const samples = await client.sample.findMany({
+    where: { projectId, addedRevision: { lte: revision } },
+    select: { id: true, currentLabel: true, labelRevision: true },
+  });
+  const labels = new Map<string, string>();
+  let later = false;
+  for (const s of samples) {
+    labels.set(s.id, s.currentLabel);
+    if (s.labelRevision > revision) later = true;
+  }
+  if (later) {
+    const changes = await client.labelChange.findMany({
+      where: { projectId, revisionNumber: { gt: revision } },
+      orderBy: [{ revisionNumber: 'asc' }],
+      select: { sampleId: true, fromLabel: true },
+    });
+    const seen = new Set<string>();
+    for (const c of changes) {
+      if (seen.has(c.sampleId)) continue;
+      seen.add(c.sampleId);
+      if (labels.has(c.sampleId)) labels.set(c.sampleId, c.fromLabel);
+    }
+  }
+  return labels;
+}
+
+export interface FitInput {
+  readonly sampleIds: string[];
+  readonly labels: string[];
+  /** rows of the engine's matrix → rows of the cached feature matrix */
+  readonly rows: Int32Array;
+  readonly X: Float32Array;
+  readonly cols: number;
+}
+
+/** The engine's input for `revision`: rows in cache order, restricted to samples that existed then. */
+export async function fitInput(client: Db | DbTx, projectId: string, revision: number): Promise<{ input: FitInput; matrix: FeatureMatrix }> {
+  const [matrix, labels] = await Promise.all([featureMatrix(client, projectId), labelsAtRevision(client, projectId, revision)]);
+  const sampleIds: string[] = [];
+  const lab: string[] = [];
+  const rows: number[] = [];
+  for (let r = 0; r < matrix.rows; r++) {
+    const label = labels.get(matrix.sampleIds[r]);
+    if (label === undefined) continue;
+    sampleIds.push(matrix.sampleIds[r]);
+    lab.push(label);
+    rows.push(r);
+  }
+  let X = matrix.X;
+  if (rows.length !== matrix.rows) {
+    const d = matrix.cols;
+    X = new Float32Array(new SharedArrayBuffer(Math.max(4, rows.length * d * 4)));
+    rows.forEach((r, i) => X.set(matrix.X.subarray(r * d, (r + 1) * d), i * d));
+  }
+  return { input: { sampleIds, labels: lab, rows: Int32Array.from(rows), X, cols: matrix.cols }, matrix };
+}

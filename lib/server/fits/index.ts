@@ -1,0 +1,68 @@
+/**
+ * The refit service's public surface.
+ *
+ *   ensureFitWorker()            starts the process-wide in-process worker once (idempotent); the
+ *                                app calls it on start-up (instrumentation) and lazily from the
+ *                                queue's pages, actions and routes
+ *   runInitialFit(projectId, db) for scripts (the demo seed): makes sure the project's current
+ *                                revision has a fit, runs the queued fits on the calling thread and
+ *                                returns when the project has a completed fit and a queue
+ *   notifyFitQueued(request)     after committing a queued Fit row
+ */
+import { db as defaultDb, type Db } from '../db';
+import { writeTx } from '../queue/tx';
+import { enqueueCurrentRevisionTx } from './enqueue';
+import { inlineEngine, workerEngine, type EngineRunner } from './engine';
+import { InProcessFitQueue } from './in-process';
+import { currentFitJobQueue, setFitJobQueue, type FitJobQueue } from './jobs';
+import { processProject, type ProcessOutcome } from './run-fit';
+
+export { notifyFitQueued, currentFitJobQueue, setFitJobQueue, type FitJobQueue, type FitRequest } from './jobs';
+export { enqueueFitTx, enqueueCurrentRevisionTx } from './enqueue';
+export { processProject, type ProcessOutcome } from './run-fit';
+export { InProcessFitQueue } from './in-process';
+export { inlineEngine, workerEngine, type EngineRunner } from './engine';
+
+const holder = globalThis as typeof globalThis & { __borderlineFitWorkerStart?: Promise<FitJobQueue> };
+
+/** Starts the in-process fit worker of this server process (once). */
+export function ensureFitWorker(client: Db = defaultDb()): Promise<FitJobQueue> {
+  const existing = currentFitJobQueue();
+  if (existing && holder.__borderlineFitWorkerStart) return holder.__borderlineFitWorkerStart;
+  if (existing) return Promise.resolve(existing);
+  const queue = new InProcessFitQueue(client, {
+    engine: workerEngine(),
+    log: (line) => console.log(`[refit] ${line}`),
+  });
+  setFitJobQueue(queue);
+  holder.__borderlineFitWorkerStart = queue.start().then(
+    () => queue,
+    (e: unknown) => {
+      console.error('[refit] the fit worker could not start', e);
+      setFitJobQueue(null);
+      holder.__borderlineFitWorkerStart = undefined;
+      throw e;
+    },
+  );
+  return holder.__borderlineFitWorkerStart;
+}
+
+/**
+ * For the demo seed and other scripts: queues a fit of the current revision if the project has no
+ * fit yet, then runs every queued fit of the project on this thread (no worker thread needed in a
+ * script). Resolves with the last outcome; the project then has a completed fit and a queue.
+ */
+export async function runInitialFit(projectId: string, client: Db = defaultDb(), engine: EngineRunner = inlineEngine): Promise<ProcessOutcome | null> {
+  const existing = await client.fit.count({ where: { projectId, status: { in: ['queued', 'running', 'done'] } } });
+  if (existing === 0) {
+    await writeTx(client, [{ table: 'Project', id: projectId }], (tx) => enqueueCurrentRevisionTx(tx, projectId));
+  }
+  // A 'running' fit left by an interrupted script run would block the project: start it over.
+  await client.fit.updateMany({ where: { projectId, status: 'running' }, data: { status: 'queued', progress: 0 } });
+  let last: ProcessOutcome | null = null;
+  for (;;) {
+    const outcome = await processProject(client, projectId, { engine, followUp: false, log: (line) => console.log(`[refit] ${line}`) });
+    if (!outcome) return last;
+    last = outcome;
+  }
+}

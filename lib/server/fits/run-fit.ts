@@ -1,0 +1,714 @@
+/**
+ * The refit job body, shared by every FitJobQueue implementation (see jobs.ts for the contract).
+ *
+ *   processProject(db, projectId, options)  runs at most one fit of the project and returns it
+ *
+ * 1. Claim (project row locked): nothing happens while the project has a running fit. Of the
+ *    queued fits the newest — highest revision, then latest request — becomes `running`; older
+ *    queued fits are marked `superseded` (coalescing: a burst of revisions gives one fit).
+ * 2. Input: the samples as they were at the fit's revision (features from the in-memory matrix,
+ *    labels replayed from the label history), settings from the fit's snapshot.
+ * 3. Engine, in a worker thread, warm-started from the duals of the newest finished fit with the
+ *    same kernel, C, γ, scaling and solver:
+ *    - full pass: fit + pivots + stratified k-fold out-of-fold margins (+ model selection when the
+ *      project asks for it);
+ *    - quick pass, for large projects (rows × features > QUICK_PASS_CELLS) that already have a full
+ *      pass with the same settings: the warm-started fit only; out-of-fold decision values and
+ *      pivot influence are carried over from that full pass (each sample's out-of-fold margin is
+ *      recomputed for its current label). A full pass of the same revision is queued right after;
+ *      it is cancelled when a newer revision arrives, so relabels never wait behind it.
+ * 4. Complete (project row locked): if a fit of the project with a newer (revision, request time)
+ *    has already completed, this one is marked `superseded` and nothing of it is written. Otherwise
+ *    status `done`, metrics, model and formulation are written and the queue is rebuilt from it in
+ *    the same transaction.
+ * 5. Standings are then inserted in batches; `progress` reaches 1 when they are all stored (a done
+ *    fit with progress < 1 is current for the queue but its standings are still being written).
+ */
+import { readProjectSettings, type ProjectSettings } from '../../domain-queue';
+import { suspicionScore, type AuditResult } from '../../margin/audit';
+import type { FitResult, FitSettings, LabelledData, WarmStart } from '../../margin/model';
+import { flagNames, supportKindName } from '../../margin/standings';
+import type { WorkerProgress } from '../../margin/run-in-worker';
+import { FitCancelledError } from '../../margin/types';
+import type { Db } from '../db';
+import { rebuildQueueTx, type QueueCandidate, type RebuildSummary } from '../queue/build';
+import { systemClock, type Clock } from '../queue/context';
+import { providerOf, writeTx } from '../queue/tx';
+import { fitInput } from './data';
+import type { EngineRunner } from './engine';
+import { decodeModel, encodeModel } from './model-codec';
+import { insertStandings, packDetail, unpackDetail, type StandingRow } from './standings-store';
+
+/** Projects larger than this (rows × features) get quick passes between full passes. */
+export const QUICK_PASS_CELLS = 4_000_000;
+/** Samples above which `solver: auto` picks dual coordinate descent for the linear kernel. */
+export const AUTO_DCD_ROWS = 5000;
+
+export type FitPass = 'full' | 'quick';
+
+export interface FitSnapshot {
+  readonly settings: ProjectSettings;
+  /** set on the full pass queued after a quick pass */
+  readonly followUp: boolean;
+}
+
+export function readSnapshot(json: string): FitSnapshot {
+  let followUp = false;
+  try {
+    const raw: unknown = JSON.parse(json);
+    followUp = raw !== null && typeof raw === 'object' && (raw as { followUp?: unknown }).followUp === true;
+  } catch {
+    followUp = false;
+  }
+  return { settings: readProjectSettings(json), followUp };
+}
+
+export interface ProcessOptions {
+  readonly engine: EngineRunner;
+  readonly clock?: Clock;
+  /** aborts the engine (the fit is then marked cancelled) */
+  readonly signal?: AbortSignal;
+  /** called once the fit is claimed (the in-process queue uses it to know what is running) */
+  readonly onClaim?: (fit: { id: string; revisionNumber: number; followUp: boolean }) => void;
+  /** queue a full pass after a quick one (default true) */
+  readonly followUp?: boolean;
+  readonly log?: (line: string) => void;
+}
+
+export interface ProcessOutcome {
+  readonly fitId: string;
+  readonly revisionNumber: number;
+  readonly status: 'done' | 'superseded' | 'failed' | 'cancelled';
+  readonly pass: FitPass | null;
+  readonly error?: string;
+  readonly queue?: RebuildSummary;
+  readonly timings?: Timings;
+}
+
+export interface Timings {
+  loadMs: number;
+  engineMs: number;
+  completeMs: number;
+  standingsMs: number;
+  totalMs: number;
+}
+
+// ───────────────────────── settings → engine ─────────────────────────
+
+export interface Chosen {
+  readonly C: number;
+  readonly gamma: number | null;
+}
+
+export function resolveSolver(s: ProjectSettings, rows: number): 'smo' | 'dcd' {
+  if (s.solver !== 'auto') return s.solver;
+  return s.kernel === 'linear' && rows > AUTO_DCD_ROWS ? 'dcd' : 'smo';
+}
+
+export function engineSettings(s: ProjectSettings, rows: number, cols: number, chosen: Chosen | null): FitSettings {
+  const gamma = chosen?.gamma ?? s.gamma ?? 1 / Math.max(1, cols);
+  const kernel =
+    s.kernel === 'linear'
+      ? ({ type: 'linear' } as const)
+      : s.kernel === 'rbf'
+        ? ({ type: 'rbf', gamma } as const)
+        : ({ type: 'poly', gamma, degree: s.degree, coef0: s.coef0 } as const);
+  return {
+    kernel,
+    C: chosen?.C ?? s.C,
+    solver: resolveSolver(s, rows),
+    scale: s.scale,
+    seed: s.seed,
+    nearBand: s.nearBand,
+    pivotThreshold: s.pivotThreshold,
+    pivotCap: s.pivotCap,
+    folds: s.folds,
+  };
+}
+
+/** Fits whose duals can warm-start each other solve the same problem family. */
+function warmKey(fs: FitSettings): string {
+  return JSON.stringify([fs.kernel, fs.C, fs.solver, fs.scale]);
+}
+
+/** Out-of-fold values can be carried between fits with the same problem and the same folds. */
+function carryKey(fs: FitSettings): string {
+  return JSON.stringify([fs.kernel, fs.C, fs.solver, fs.scale, fs.folds, fs.seed]);
+}
+
+// ───────────────────────── in-memory state kept between fits ─────────────────────────
+
+interface Carried {
+  readonly fitId: string;
+  readonly key: string;
+  readonly classes: readonly string[];
+  /** out-of-fold decision per boundary, by sample id */
+  readonly oof: Map<string, Float64Array>;
+  /** largest |relative margin-width change| when the sample is removed, by sample id */
+  readonly pivotDelta: Map<string, number>;
+  readonly chosen: Chosen | null;
+}
+
+interface WarmCache {
+  readonly fitId: string;
+  readonly key: string;
+  readonly warm: WarmStart;
+}
+
+const memory = globalThis as typeof globalThis & {
+  __borderlineCarried?: Map<string, Carried>;
+  __borderlineWarm?: Map<string, WarmCache>;
+};
+const carriedStore = (): Map<string, Carried> => (memory.__borderlineCarried ??= new Map());
+const warmStore = (): Map<string, WarmCache> => (memory.__borderlineWarm ??= new Map());
+
+/** Forgets the in-memory warm starts and carried out-of-fold values (tests). */
+export function resetFitMemory(): void {
+  carriedStore().clear();
+  warmStore().clear();
+}
+
+async function warmStartFor(db: Db, projectId: string, key: string): Promise<{ fitId: string; warm: WarmStart } | null> {
+  const previous = await db.fit.findFirst({
+    where: { projectId, status: 'done', model: { not: null } },
+    orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }, { id: 'desc' }],
+    select: { id: true, settings: true, metrics: true },
+  });
+  if (!previous) return null;
+  const cached = warmStore().get(projectId);
+  if (cached && cached.fitId === previous.id) return cached.key === key ? { fitId: cached.fitId, warm: cached.warm } : null;
+  const row = await db.fit.findUnique({ where: { id: previous.id }, select: { model: true } });
+  if (!row?.model) return null;
+  try {
+    const model = decodeModel(row.model);
+    const prevKey = JSON.stringify([model.header.kernel, model.header.C, model.header.solver, model.header.scale]);
+    const warm: WarmStart = {
+      ids: model.header.sampleIds,
+      boundaries: model.boundaries.map((b) => ({ positive: b.positive, negative: b.negative, alpha: b.alpha })),
+    };
+    warmStore().set(projectId, { fitId: previous.id, key: prevKey, warm });
+    return prevKey === key ? { fitId: previous.id, warm } : null;
+  } catch {
+    return null;
+  }
+}
+
+interface StoredMetrics {
+  readonly pass?: FitPass;
+  readonly carryKey?: string;
+  readonly classes?: string[];
+  readonly selection?: { C: number; gamma: number | null } | null;
+}
+
+function parseMetrics(json: string | null): StoredMetrics {
+  if (!json) return {};
+  try {
+    const v: unknown = JSON.parse(json);
+    return v !== null && typeof v === 'object' ? (v as StoredMetrics) : {};
+  } catch {
+    return {};
+  }
+}
+
+/** The carried out-of-fold values of the project's newest full pass with `key` (memory, else DB). */
+async function carriedFor(db: Db, projectId: string, key: string): Promise<Carried | null> {
+  const hit = carriedStore().get(projectId);
+  if (hit && hit.key === key) return hit;
+  const fits = await db.fit.findMany({
+    where: { projectId, status: 'done', progress: { gte: 1 } },
+    orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }],
+    take: 10,
+    select: { id: true, metrics: true },
+  });
+  const full = fits.find((f) => {
+    const m = parseMetrics(f.metrics);
+    return m.pass === 'full' && m.carryKey === key && Array.isArray(m.classes);
+  });
+  if (!full) return null;
+  const m = parseMetrics(full.metrics);
+  const oof = new Map<string, Float64Array>();
+  const pivotDelta = new Map<string, number>();
+  let cursor: string | undefined;
+  for (;;) {
+    const page = await db.standing.findMany({
+      where: { fitId: full.id },
+      orderBy: { id: 'asc' },
+      take: 10000,
+      ...(cursor ? { cursor: { id: cursor }, skip: 1 } : {}),
+      select: { id: true, sampleId: true, detail: true, flags: true },
+    });
+    for (const s of page) {
+      const d = unpackDetail(s.detail);
+      if (d && d.oofDecision.every((v) => v !== null)) oof.set(s.sampleId, Float64Array.from(d.oofDecision as number[]));
+      if (s.flags.split(',').includes('pivot')) pivotDelta.set(s.sampleId, Infinity);
+    }
+    if (page.length < 10000) break;
+    cursor = page[page.length - 1].id;
+  }
+  const carried: Carried = { fitId: full.id, key, classes: m.classes ?? [], oof, pivotDelta, chosen: m.selection ?? null };
+  carriedStore().set(projectId, carried);
+  return carried;
+}
+
+// ───────────────────────── per-sample records ─────────────────────────
+
+interface SampleRecords {
+  readonly rows: StandingRow[];
+  readonly candidates: QueueCandidate[];
+  readonly score: Map<string, { suspicion: number; reasons: string[] }>;
+  readonly oofAccuracy: number | null;
+}
+
+function pivotDeltas(fit: FitResult): Float64Array {
+  const delta = new Float64Array(fit.ids.length);
+  for (const b of fit.boundaries) {
+    for (const e of b.pivots?.computed ?? []) {
+      if (Math.abs(e.relativeDelta) > Math.abs(delta[e.index])) delta[e.index] = e.relativeDelta;
+    }
+  }
+  return delta;
+}
+
+/** Out-of-fold margin for a label from per-boundary decisions (binary: y·f; multi: own − best other). */
+function marginFrom(decisions: ArrayLike<number>, classes: readonly string[], label: string): { margin: number; predicted: number } {
+  const own = classes.indexOf(label);
+  if (decisions.length === 1) {
+    const y = own === 1 ? 1 : -1;
+    return { margin: y * decisions[0], predicted: decisions[0] > 0 ? 1 : 0 };
+  }
+  let best = 0;
+  let bestOther = -Infinity;
+  for (let k = 0; k < decisions.length; k++) {
+    if (decisions[k] > decisions[best]) best = k;
+    if (k !== own && decisions[k] > bestOther) bestOther = decisions[k];
+  }
+  return { margin: decisions[own] - bestOther, predicted: best };
+}
+
+function buildRecords(
+  fit: FitResult,
+  audit: AuditResult | null,
+  carried: Carried | null,
+  threshold: number,
+): SampleRecords {
+  const n = fit.ids.length;
+  const B = fit.boundaries.length;
+  const multi = B > 1;
+  const scale = multi ? 0.5 : 1;
+  const deltas = audit ? pivotDeltas(fit) : null;
+  const rows: StandingRow[] = new Array(n);
+  const candidates: QueueCandidate[] = [];
+  const score = new Map<string, { suspicion: number; reasons: string[] }>();
+  let oofCorrect = 0;
+  let oofCount = 0;
+  const sameClasses = carried !== null && carried.classes.join('\u0000') === fit.classes.join('\u0000');
+  const decisions = new Array<number>(B);
+  for (let i = 0; i < n; i++) {
+    const id = fit.ids[i];
+    const label = fit.labels[i];
+    const own = multi ? fit.classIndex[i] : 0;
+    const st = fit.boundaries[own].standings;
+    for (let k = 0; k < B; k++) decisions[k] = fit.boundaries[k].standings.decision[i];
+    let oofDecisions: number[] | null = null;
+    let oofMargin: number | null = null;
+    let oofPredicted = -1;
+    if (audit) {
+      oofDecisions = audit.outOfFold.decision.map((d) => d[i]);
+      oofMargin = audit.outOfFold.margin[i];
+      oofPredicted = audit.outOfFold.predicted[i];
+    } else if (sameClasses && carried) {
+      const c = carried.oof.get(id);
+      if (c && c.length === B) {
+        oofDecisions = Array.from(c);
+        const m = marginFrom(c, fit.classes, label);
+        oofMargin = m.margin;
+        oofPredicted = m.predicted;
+      }
+    }
+    if (oofMargin !== null) {
+      oofCount++;
+      if (oofPredicted === fit.classIndex[i]) oofCorrect++;
+    }
+    const inMargin = fit.samples.margin[i];
+    const pd = deltas ? deltas[i] : (carried?.pivotDelta.get(id) ?? 0);
+    const suspicion = audit
+      ? audit.suspicion[i]
+      : suspicionScore(scale * (oofMargin ?? inMargin), scale * inMargin, Number.isFinite(pd) ? pd : 2 * threshold, threshold);
+    const flags = flagNames(fit.samples.flags[i]);
+    const reasons: string[] = [...flags];
+    if (oofMargin !== null && oofMargin < 0) reasons.push('held-out-wrong-side');
+    rows[i] = {
+      sampleId: id,
+      margin: inMargin,
+      distance: fit.samples.distance[i],
+      slack: st.slack[i],
+      alpha: fit.samples.alpha[i],
+      svKind: supportKindName(st.support[i]),
+      oofMargin,
+      flags: flags.join(','),
+      suspicion,
+      predicted: fit.classes[fit.samples.predicted[i]],
+      detail: packDetail(decisions, oofDecisions),
+    };
+    score.set(id, { suspicion, reasons });
+    if (reasons.length > 0) candidates.push({ sampleId: id, suspicion, reasons, label });
+  }
+  return { rows, candidates, score, oofAccuracy: oofCount > 0 ? oofCorrect / oofCount : null };
+}
+
+// ───────────────────────── metrics ─────────────────────────
+
+function num(v: number): number | null {
+  return Number.isFinite(v) ? v : null;
+}
+
+function buildMetrics(
+  fit: FitResult,
+  extra: {
+    pass: FitPass;
+    carryKey: string;
+    warmFromFitId: string | null;
+    selection: Chosen | null;
+    oofAccuracy: number | null;
+    oofCarriedFrom: string | null;
+    rows: number;
+    cols: number;
+    candidates: number;
+  },
+): Record<string, unknown> {
+  const B = fit.boundaries.length;
+  let wrongSide = 0;
+  let insideMargin = 0;
+  let nearBoundary = 0;
+  let pivot = 0;
+  let any = 0;
+  for (let i = 0; i < fit.ids.length; i++) {
+    const f = fit.samples.flags[i];
+    if (f & 1) wrongSide++;
+    if (f & 2) insideMargin++;
+    if (f & 4) nearBoundary++;
+    if (f & 8) pivot++;
+    if (f) any++;
+  }
+  let correct = 0;
+  const confusion = fit.classes.map(() => fit.classes.map(() => 0));
+  for (let i = 0; i < fit.ids.length; i++) {
+    const p = fit.samples.predicted[i];
+    confusion[fit.classIndex[i]][p]++;
+    if (p === fit.classIndex[i]) correct++;
+  }
+  return {
+    pass: extra.pass,
+    carryKey: extra.carryKey,
+    classes: fit.classes,
+    samples: extra.rows,
+    features: extra.cols,
+    kernel: fit.settings.kernel,
+    C: fit.settings.C,
+    solver: fit.settings.solver,
+    scale: fit.settings.scale,
+    folds: fit.settings.folds,
+    seed: fit.settings.seed,
+    nearBand: fit.settings.nearBand,
+    pivotThreshold: fit.settings.pivotThreshold,
+    formulation: fit.boundaries[0]?.formulation ?? null,
+    warmStarted: extra.warmFromFitId !== null,
+    warmFromFitId: extra.warmFromFitId,
+    selection: extra.selection,
+    oofCarriedFrom: extra.oofCarriedFrom,
+    accuracy: fit.ids.length ? correct / fit.ids.length : null,
+    oofAccuracy: extra.oofAccuracy,
+    confusion,
+    flagged: { wrongSide, insideMargin, nearBoundary, pivot, any },
+    queueCandidates: extra.candidates,
+    boundaries: fit.boundaries.map((b) => {
+      let hinge = 0;
+      for (let i = 0; i < b.standings.slack.length; i++) hinge += b.standings.slack[i];
+      return {
+        name: b.name,
+        positive: b.positive,
+        negative: b.negative,
+        formulation: b.formulation,
+        b: num(b.solution.b),
+        wNorm: num(b.wNorm),
+        marginWidth: num(b.marginWidth),
+        supportVectors: b.counts.support,
+        free: b.counts.free,
+        bound: b.counts.bound,
+        wrongSide: b.counts.wrongSide,
+        insideMargin: b.counts.insideMargin,
+        nearBoundary: b.counts.nearBoundary,
+        pivots: b.counts.pivot,
+        pivotsComputed: b.pivots ? b.pivots.computed.length : 0,
+        hingeLoss: num(hinge),
+        iterations: b.solution.iterations,
+        converged: b.solution.converged,
+        primalObjective: num(b.solution.primalObjective),
+        dualObjective: num(b.solution.dualObjective),
+        dualityGap: num(b.solution.dualityGap),
+        maxKktViolation: num(b.solution.maxKktViolation),
+        separable: b.separable,
+        hardMargin: b.hardMargin,
+      };
+    }),
+    boundaryCount: B,
+  };
+}
+
+// ───────────────────────── progress ─────────────────────────
+
+function progressMapper(pass: FitPass, withSelection: boolean): (p: WorkerProgress) => number | null {
+  let boundary = 0;
+  let boundaries = 1;
+  return (p) => {
+    const s = p.stage;
+    if (!s) return null;
+    const sel = withSelection ? 0.3 : 0;
+    if (s.stage === 'grid') return (0.3 * (s.step - 1)) / Math.max(1, s.of);
+    const rest = 1 - sel;
+    const fitShare = pass === 'quick' ? 0.7 : 0.35;
+    if (s.stage === 'fit') {
+      boundary = s.step - 1;
+      boundaries = s.of;
+      return sel + rest * fitShare * (boundary / boundaries);
+    }
+    if (s.stage === 'pivots') return sel + rest * fitShare * ((boundary + s.step / Math.max(1, s.of)) / boundaries);
+    if (s.stage === 'fold') return sel + rest * (fitShare + 0.5 * ((s.step - 1) / Math.max(1, s.of)));
+    return null;
+  };
+}
+
+// ───────────────────────── the job ─────────────────────────
+
+async function claim(db: Db, projectId: string, now: Date) {
+  return writeTx(db, [{ table: 'Project', id: projectId }], async (tx) => {
+    const running = await tx.fit.findFirst({ where: { projectId, status: 'running' }, select: { id: true } });
+    if (running) return null;
+    const queued = await tx.fit.findMany({
+      where: { projectId, status: 'queued' },
+      orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }, { id: 'desc' }],
+      select: { id: true, revisionNumber: true, settings: true, createdAt: true },
+    });
+    if (queued.length === 0) return null;
+    const [chosen, ...rest] = queued;
+    if (rest.length > 0) {
+      await tx.fit.updateMany({
+        where: { id: { in: rest.map((r) => r.id) }, status: 'queued' },
+        data: { status: 'superseded', finishedAt: now, error: `coalesced into the fit of revision ${chosen.revisionNumber}` },
+      });
+    }
+    await tx.fit.update({ where: { id: chosen.id }, data: { status: 'running', startedAt: now, progress: 0, error: null } });
+    return chosen;
+  });
+}
+
+async function finishWithStatus(db: Db, fitId: string, status: 'failed' | 'cancelled', error: string, now: Date): Promise<void> {
+  await db.fit.updateMany({ where: { id: fitId, status: 'running' }, data: { status, error: error.slice(0, 2000), finishedAt: now } });
+}
+
+/** Runs at most one queued fit of the project. Returns null when there was nothing to run. */
+export async function processProject(db: Db, projectId: string, options: ProcessOptions): Promise<ProcessOutcome | null> {
+  const clock = options.clock ?? systemClock;
+  const log = options.log ?? (() => {});
+  const claimed = await claim(db, projectId, clock());
+  if (!claimed) return null;
+  const snapshot = readSnapshot(claimed.settings);
+  options.onClaim?.({ id: claimed.id, revisionNumber: claimed.revisionNumber, followUp: snapshot.followUp });
+  const started = performance.now();
+  const fitId = claimed.id;
+  const outcome = (status: ProcessOutcome['status'], pass: FitPass | null, error?: string): ProcessOutcome => ({
+    fitId,
+    revisionNumber: claimed.revisionNumber,
+    status,
+    pass,
+    ...(error ? { error } : {}),
+  });
+  let lastWrite = 0;
+  let writing: Promise<unknown> = Promise.resolve();
+  const setProgress = (value: number, force = false) => {
+    const now = Date.now();
+    if (!force && now - lastWrite < 400) return;
+    lastWrite = now;
+    const v = Math.max(0, Math.min(0.99, value));
+    writing = writing.then(() => db.fit.updateMany({ where: { id: fitId, status: 'running' }, data: { progress: v } })).catch(() => {});
+  };
+
+  let pass: FitPass = 'full';
+  try {
+    const { input } = await fitInput(db, projectId, claimed.revisionNumber);
+    const n = input.sampleIds.length;
+    const d = input.cols;
+    if (new Set(input.labels).size < 2) {
+      await finishWithStatus(db, fitId, 'failed', 'A fit needs samples of at least two classes.', clock());
+      return outcome('failed', null, 'A fit needs samples of at least two classes.');
+    }
+    const s = snapshot.settings;
+    const baseSettings = engineSettings(s, n, d, null);
+    const key = carryKey(baseSettings);
+    const carried = await carriedFor(db, projectId, key);
+    const large = n * d > QUICK_PASS_CELLS;
+    pass = !snapshot.followUp && large && carried !== null ? 'quick' : 'full';
+    let chosen: Chosen | null = s.autoSelect ? (carried?.chosen ?? null) : null;
+    const data: LabelledData = { ids: input.sampleIds, labels: input.labels, X: { data: input.X, rows: n, cols: d } };
+    const loadMs = performance.now() - started;
+
+    const toFraction = progressMapper(pass, s.autoSelect && pass === 'full');
+    const onProgress = (p: WorkerProgress) => {
+      const f = toFraction(p);
+      if (f !== null) setProgress(f);
+    };
+    const engineStart = performance.now();
+    if (s.autoSelect && pass === 'full') {
+      const sel = await options.engine.select(data, baseSettings, {}, onProgress, options.signal);
+      chosen = { C: sel.best.C, gamma: sel.best.gamma };
+    }
+    const fitSettings = engineSettings(s, n, d, chosen);
+    const warm = await warmStartFor(db, projectId, warmKey(fitSettings));
+    const settingsWithWarm: FitSettings = warm ? { ...fitSettings, warmStart: warm.warm } : fitSettings;
+    let fit: FitResult;
+    let audit: AuditResult | null = null;
+    if (pass === 'full') {
+      audit = await options.engine.audit(data, settingsWithWarm, onProgress, options.signal);
+      fit = audit.fit;
+    } else {
+      fit = await options.engine.fit(data, { ...settingsWithWarm, pivotCap: 0 }, onProgress, options.signal);
+    }
+    const engineMs = performance.now() - engineStart;
+
+    const records = buildRecords(fit, audit, pass === 'quick' ? carried : null, fit.settings.pivotThreshold);
+    const metrics = buildMetrics(fit, {
+      pass,
+      carryKey: key,
+      warmFromFitId: warm?.fitId ?? null,
+      selection: chosen,
+      oofAccuracy: records.oofAccuracy,
+      oofCarriedFrom: pass === 'quick' ? (carried?.fitId ?? null) : null,
+      rows: n,
+      cols: d,
+      candidates: records.candidates.length,
+    });
+    const model = encodeModel(fit, input.sampleIds);
+    await writing;
+
+    const completeStart = performance.now();
+    const provider = providerOf(db);
+    const completed = await writeTx(db, [{ table: 'Project', id: projectId }], async (tx) => {
+      const now = clock();
+      const me = await tx.fit.findUnique({ where: { id: fitId }, select: { status: true, createdAt: true } });
+      if (!me || me.status !== 'running') return { kind: 'gone' as const };
+      const newer = await tx.fit.findFirst({
+        where: {
+          projectId,
+          status: 'done',
+          id: { not: fitId },
+          OR: [
+            { revisionNumber: { gt: claimed.revisionNumber } },
+            { revisionNumber: claimed.revisionNumber, createdAt: { gt: me.createdAt } },
+          ],
+        },
+        select: { id: true, revisionNumber: true },
+      });
+      if (newer) {
+        await tx.fit.update({
+          where: { id: fitId },
+          data: { status: 'superseded', finishedAt: now, error: `a fit of revision ${newer.revisionNumber} completed first` },
+        });
+        return { kind: 'superseded' as const };
+      }
+      const queue = await rebuildQueueTx(tx, {
+        projectId,
+        fitId,
+        revisionNumber: claimed.revisionNumber,
+        candidates: records.candidates,
+        scoreOf: (id) => records.score.get(id) ?? null,
+        queueCap: s.queueCap,
+        now,
+        provider,
+      });
+      await tx.fit.update({
+        where: { id: fitId },
+        data: {
+          status: 'done',
+          progress: 0.99,
+          finishedAt: now,
+          formulation: fit.boundaries[0]?.formulation ?? null,
+          metrics: JSON.stringify({ ...metrics, queue }),
+          model,
+          warmFromFitId: warm?.fitId ?? null,
+        },
+      });
+      return { kind: 'done' as const, queue };
+    });
+    const completeMs = performance.now() - completeStart;
+    if (completed.kind === 'gone') return outcome('cancelled', pass, 'the fit was stopped while it ran');
+    if (completed.kind === 'superseded') {
+      log(`fit ${fitId} (revision ${claimed.revisionNumber}) superseded by a newer completed fit`);
+      return outcome('superseded', pass);
+    }
+
+    // Remember what the next fits can reuse.
+    warmStore().set(projectId, {
+      fitId,
+      key: warmKey(fitSettings),
+      warm: { ids: input.sampleIds, boundaries: fit.boundaries.map((b) => ({ positive: b.positive, negative: b.negative, alpha: b.solution.alpha })) },
+    });
+    if (audit) {
+      const oof = new Map<string, Float64Array>();
+      const pivotDelta = new Map<string, number>();
+      const deltas = pivotDeltas(fit);
+      for (let i = 0; i < n; i++) {
+        oof.set(input.sampleIds[i], Float64Array.from(audit.outOfFold.decision, (dec) => dec[i]));
+        if (deltas[i] !== 0) pivotDelta.set(input.sampleIds[i], deltas[i]);
+      }
+      carriedStore().set(projectId, { fitId, key, classes: fit.classes, oof, pivotDelta, chosen });
+    }
+
+    const standingsStart = performance.now();
+    await insertStandings(db, provider, fitId, records.rows, (written) => {
+      if (written === records.rows.length) return;
+      return db.fit.update({ where: { id: fitId }, data: { progress: 0.99 } }).then(() => undefined);
+    });
+    await db.fit.update({ where: { id: fitId }, data: { progress: 1 } });
+    const standingsMs = performance.now() - standingsStart;
+
+    if (pass === 'quick' && options.followUp !== false) {
+      await queueFollowUp(db, projectId, fitId, claimed.revisionNumber);
+    }
+    const timings: Timings = { loadMs, engineMs, completeMs, standingsMs, totalMs: performance.now() - started };
+    log(
+      `fit ${fitId} revision ${claimed.revisionNumber} ${pass}: ${n}×${d}, load ${loadMs.toFixed(0)} ms, engine ${engineMs.toFixed(0)} ms, ` +
+        `queue ${completeMs.toFixed(0)} ms, standings ${standingsMs.toFixed(0)} ms`,
+    );
+    return { ...outcome('done', pass), queue: completed.queue, timings };
+  } catch (e) {
+    await writing;
+    if (e instanceof FitCancelledError) {
+      await finishWithStatus(db, fitId, 'cancelled', 'cancelled', clock());
+      return outcome('cancelled', pass, 'cancelled');
+    }
+    const message = e instanceof Error ? `${e.name === 'EngineInputError' ? '' : `${e.name}: `}${e.message}` : String(e);
+    log(`fit ${fitId} failed: ${message}`);
+    await finishWithStatus(db, fitId, 'failed', message, clock());
+    return outcome('failed', pass, message);
+  }
+}
+
+/** After a quick pass: queue a full pass of the same revision unless newer work is waiting. */
+async function queueFollowUp(db: Db, projectId: string, fitId: string, revisionNumber: number): Promise<void> {
+  await writeTx(db, [{ table: 'Project', id: projectId }], async (tx) => {
+    const waiting = await tx.fit.count({ where: { projectId, status: { in: ['queued', 'running'] } } });
+    if (waiting > 0) return;
+    const fit = await tx.fit.findUnique({ where: { id: fitId }, select: { revisionId: true, settings: true } });
+    if (!fit) return;
+    let snapshot: Record<string, unknown> = {};
+    try {
+      snapshot = JSON.parse(fit.settings) as Record<string, unknown>;
+    } catch {
+      snapshot = {};
+    }
+    await tx.fit.create({
+      data: { projectId, revisionId: fit.revisionId, revisionNumber, status: 'queued', settings: JSON.stringify({ ...snapshot, followUp: true }) },
+    });
+  });
+}
+

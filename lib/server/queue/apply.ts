@@ -1,0 +1,160 @@
+/**
+ * Applying agreed relabels: closed items with outcome `relabelled` and no `appliedRevision` are
+ * "pending changes". Applying them makes ONE new revision N+1 holding one LabelChange per item,
+ * moves each sample's current label, stamps every item with `appliedRevision = N+1`, queues a
+ * refit of revision N+1 — all in one transaction — and then nudges the fit worker.
+ *
+ * Batching rule: pending changes are applied automatically as soon as there are at least
+ * `applyEvery` of them (project setting, default 10; checked after every vote or decision that
+ * closes an item as relabelled), or whenever a lead applies them ("apply now"). With
+ * `applyEvery = 0` only a lead applies.
+ *
+ * Each relabel lands in exactly one revision: the project row is locked first (so two applies
+ * run one after the other), the pending items are then locked and re-read, and an item is
+ * stamped only by a conditional update `WHERE appliedRevision IS NULL AND state = 'closed'` whose
+ * count must match; LabelChange's unique (sampleId, revisionNumber) is the last line of defence.
+ */
+import { readProjectSettings } from '../../domain-queue';
+import { roleAtLeast } from '../../domain';
+import type { TeamScope } from '../authz/scope';
+import { forbidden } from '../authz/errors';
+import type { DbTx } from '../db';
+import { enqueueFitTx } from '../fits/enqueue';
+import { notifyFitQueued } from '../fits/jobs';
+import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
+import { QUEUE_MESSAGES } from './messages';
+import { writeTx } from './tx';
+
+export interface AppliedBatch {
+  readonly revisionNumber: number;
+  readonly changeCount: number;
+  readonly fitId: string;
+  readonly itemIds: readonly string[];
+  readonly trigger: 'rule' | 'lead';
+}
+
+export interface PendingChange {
+  readonly itemId: string;
+  readonly sampleId: string;
+  readonly externalId: string;
+  readonly fromLabel: string;
+  readonly toLabel: string;
+  readonly closedAt: Date | null;
+  readonly decidedBy: 'consensus' | 'lead';
+}
+
+const pendingWhere = (projectId: string) => ({ projectId, state: 'closed', outcome: 'relabelled', appliedRevision: null });
+
+export async function pendingChanges(deps: QueueDeps, scope: TeamScope, projectId: string): Promise<PendingChange[]> {
+  const project = await projectInScope(deps.db, scope, projectId);
+  const items = await deps.db.queueItem.findMany({
+    where: pendingWhere(project.id),
+    orderBy: [{ closedAt: 'asc' }, { id: 'asc' }],
+    select: { id: true, sampleId: true, finalLabel: true, closedAt: true, tiebreakById: true, sample: { select: { externalId: true, currentLabel: true } } },
+  });
+  return items.map((i) => ({
+    itemId: i.id,
+    sampleId: i.sampleId,
+    externalId: i.sample.externalId,
+    fromLabel: i.sample.currentLabel,
+    toLabel: i.finalLabel ?? i.sample.currentLabel,
+    closedAt: i.closedAt,
+    decidedBy: i.tiebreakById ? 'lead' : 'consensus',
+  }));
+}
+
+async function applyInTx(
+  tx: DbTx,
+  projectId: string,
+  userId: string | null,
+  trigger: AppliedBatch['trigger'],
+  minimum: number,
+  now: Date,
+): Promise<AppliedBatch | null> {
+  const project = await tx.project.findUnique({ where: { id: projectId }, select: { id: true, settings: true, currentRevision: true } });
+  if (!project) return null;
+  const candidates = await tx.queueItem.findMany({ where: pendingWhere(projectId), select: { id: true } });
+  if (candidates.length === 0 || candidates.length < minimum) return null;
+  // Lock the items (an undo of a closing vote may be racing), then re-read them.
+  const ids = candidates.map((c) => c.id).sort();
+  for (const id of ids) await tx.$executeRaw`UPDATE "QueueItem" SET "round" = "round" WHERE "id" = ${id}`;
+  const items = await tx.queueItem.findMany({
+    where: { ...pendingWhere(projectId), id: { in: ids } },
+    orderBy: [{ closedAt: 'asc' }, { id: 'asc' }],
+    select: { id: true, sampleId: true, finalLabel: true, tiebreakById: true, sample: { select: { currentLabel: true } } },
+  });
+  if (items.length === 0 || items.length < minimum) return null;
+  const number = project.currentRevision + 1;
+  const changes = items.filter((i) => i.finalLabel !== null && i.finalLabel !== i.sample.currentLabel);
+  if (changes.length === 0) {
+    // The labels already are what the reviewers chose (changed meanwhile by an import): nothing
+    // to record; the items count as applied in the current revision.
+    await tx.queueItem.updateMany({ where: { id: { in: items.map((i) => i.id) } }, data: { appliedRevision: project.currentRevision } });
+    return null;
+  }
+  const revision = await tx.revision.create({
+    data: {
+      projectId,
+      number,
+      kind: 'review',
+      note: trigger === 'lead' ? 'Applied by a lead' : 'Applied by the apply rule',
+      changeCount: changes.length,
+      createdById: userId,
+      createdAt: now,
+    },
+    select: { id: true, number: true },
+  });
+  for (const item of changes) {
+    await tx.labelChange.create({
+      data: {
+        projectId,
+        sampleId: item.sampleId,
+        revisionId: revision.id,
+        revisionNumber: number,
+        fromLabel: item.sample.currentLabel,
+        toLabel: item.finalLabel as string,
+        queueItemId: item.id,
+        decidedById: item.tiebreakById,
+        createdAt: now,
+      },
+    });
+    await tx.sample.update({ where: { id: item.sampleId }, data: { currentLabel: item.finalLabel as string, labelRevision: number } });
+  }
+  const stamped = await tx.queueItem.updateMany({
+    where: { ...pendingWhere(projectId), id: { in: items.map((i) => i.id) } },
+    data: { appliedRevision: number },
+  });
+  if (stamped.count !== items.length) throw new Error(`apply: stamped ${stamped.count} of ${items.length} items`);
+  await tx.project.update({ where: { id: projectId }, data: { currentRevision: number } });
+  const fitId = await enqueueFitTx(tx, project, revision);
+  return { revisionNumber: number, changeCount: changes.length, fitId, itemIds: items.map((i) => i.id), trigger };
+}
+
+async function applyAndNotify(
+  deps: QueueDeps,
+  projectId: string,
+  userId: string | null,
+  trigger: AppliedBatch['trigger'],
+  minimum: number,
+): Promise<AppliedBatch | null> {
+  const batch = await writeTx(deps.db, [{ table: 'Project', id: projectId }], (tx) => applyInTx(tx, projectId, userId, trigger, minimum, nowOf(deps)));
+  if (batch) await notifyFitQueued({ projectId, revisionNumber: batch.revisionNumber, fitId: batch.fitId });
+  return batch;
+}
+
+/** A lead's "apply now": applies every pending change (null when there is none). */
+export async function applyChanges(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string): Promise<AppliedBatch | null> {
+  if (!roleAtLeast(actor.role, 'lead')) throw forbidden(QUEUE_MESSAGES.leadOnlyApply);
+  const project = await projectInScope(deps.db, scope, projectId);
+  return applyAndNotify(deps, project.id, actor.userId, 'lead', 1);
+}
+
+/** The apply rule: applies when at least `applyEvery` changes are pending (0 = never). */
+export async function maybeAutoApply(deps: QueueDeps, scope: TeamScope, projectId: string, userId: string | null): Promise<AppliedBatch | null> {
+  const project = await projectInScope(deps.db, scope, projectId);
+  const { applyEvery } = readProjectSettings(project.settings);
+  if (applyEvery <= 0) return null;
+  const pending = await deps.db.queueItem.count({ where: pendingWhere(project.id) });
+  if (pending < applyEvery) return null;
+  return applyAndNotify(deps, project.id, userId, 'rule', applyEvery);
+}

@@ -1,0 +1,197 @@
+/**
+ * Rebuilding the review queue from a finished fit (called inside the fit's completing transaction,
+ * with the project row locked, so a rebuild never interleaves with an apply or another rebuild).
+ *
+ * Candidates are the samples the fit flags — wrong-side, inside-margin, near-boundary, pivot — plus
+ * samples that land on the wrong side when held out of the fit (`held-out-wrong-side`: a mislabelled
+ * sample drags the boundary onto itself, so its in-sample flags can understate it). They are taken
+ * in suspicion order (highest first, ties by sample id).
+ *
+ * Rules:
+ * - Items with votes, split items and items someone holds a live lease on are never removed; they
+ *   are re-scored from the new fit (suspicion, reasons, fit) and count against the cap while they
+ *   await votes.
+ * - The remaining room (queue cap − items awaiting votes that stay) is filled with candidates in
+ *   order: an open item without votes that is still a candidate is kept and re-scored; a new item
+ *   is created (round 1, or the next round) for a candidate with no item awaiting votes.
+ * - Open items without votes that are no longer candidates, or fall below the cap, are removed.
+ * - Closed items stay closed. A sample whose latest item is closed is raised again (a new round)
+ *   only when its label has changed since the reviewers decided (e.g. a later import rewrote it);
+ *   never while its agreed relabel is still pending.
+ * - Samples whose label changed after the fit's revision are skipped (their standing is stale; the
+ *   fit of the newer revision will consider them).
+ */
+import type { DbTx } from '../db';
+import type { Provider } from './tx';
+
+export interface QueueCandidate {
+  readonly sampleId: string;
+  readonly suspicion: number;
+  /** reason tokens, e.g. ['wrong-side', 'held-out-wrong-side'] */
+  readonly reasons: readonly string[];
+  /** the sample's label in the fit's revision */
+  readonly label: string;
+}
+
+export interface RebuildInput {
+  readonly projectId: string;
+  readonly fitId: string;
+  readonly revisionNumber: number;
+  /** qualifying samples, any order */
+  readonly candidates: readonly QueueCandidate[];
+  /** the fit's score for any sample it covered (re-scores items kept for other reasons) */
+  readonly scoreOf: (sampleId: string) => { suspicion: number; reasons: readonly string[] } | null;
+  readonly queueCap: number;
+  readonly now: Date;
+  readonly provider: Provider;
+}
+
+export interface RebuildSummary {
+  readonly created: number;
+  readonly rescored: number;
+  readonly removed: number;
+  readonly kept: number;
+  readonly awaiting: number;
+}
+
+const ACTIVE = new Set(['open', 'one-vote', 'split']);
+
+export async function rebuildQueueTx(tx: DbTx, input: RebuildInput): Promise<RebuildSummary> {
+  const { projectId, now } = input;
+  const stale = new Set(
+    (
+      await tx.sample.findMany({ where: { projectId, labelRevision: { gt: input.revisionNumber } }, select: { id: true } })
+    ).map((s) => s.id),
+  );
+  const items = await tx.queueItem.findMany({
+    where: { projectId },
+    select: {
+      id: true,
+      sampleId: true,
+      round: true,
+      state: true,
+      outcome: true,
+      finalLabel: true,
+      appliedRevision: true,
+      suspicion: true,
+      reasons: true,
+      fitId: true,
+      leaseUserId: true,
+      leaseExpiresAt: true,
+      _count: { select: { votes: true } },
+    },
+  });
+  type Item = (typeof items)[number];
+  const latest = new Map<string, Item>();
+  for (const it of items) {
+    const cur = latest.get(it.sampleId);
+    if (!cur || it.round > cur.round) latest.set(it.sampleId, it);
+  }
+  const isPinned = (it: Item) =>
+    ACTIVE.has(it.state) &&
+    (it._count.votes > 0 || it.state !== 'open' || (it.leaseUserId !== null && it.leaseExpiresAt !== null && it.leaseExpiresAt > now));
+  const pinned = items.filter(isPinned);
+  const pinnedAwaiting = pinned.filter((it) => it.state === 'open' || it.state === 'one-vote').length;
+  let room = Math.max(0, input.queueCap - pinnedAwaiting);
+
+  const sorted = [...input.candidates].sort((a, b) => b.suspicion - a.suspicion || (a.sampleId < b.sampleId ? -1 : a.sampleId > b.sampleId ? 1 : 0));
+  const keepOpen = new Map<string, QueueCandidate>(); // item id → candidate
+  const create: { candidate: QueueCandidate; round: number }[] = [];
+  for (const c of sorted) {
+    if (room <= 0) break;
+    if (stale.has(c.sampleId)) continue;
+    const last = latest.get(c.sampleId);
+    if (last && ACTIVE.has(last.state)) {
+      if (isPinned(last)) continue;
+      keepOpen.set(last.id, c);
+      room--;
+      continue;
+    }
+    if (last && last.state === 'closed') {
+      const pendingRelabel = last.outcome === 'relabelled' && last.appliedRevision === null;
+      if (pendingRelabel || last.finalLabel === c.label) continue;
+    }
+    create.push({ candidate: c, round: last ? last.round + 1 : 1 });
+    room--;
+  }
+
+  // Remove open, vote-less, unleased items that did not make it.
+  const remove = items.filter((it) => ACTIVE.has(it.state) && !isPinned(it) && !keepOpen.has(it.id)).map((it) => it.id);
+  let removed = 0;
+  if (remove.length > 0) {
+    const res = await tx.queueItem.deleteMany({ where: { id: { in: remove }, state: 'open', votes: { none: {} } } });
+    removed = res.count;
+  }
+
+  // Re-score what stays (one bulk UPDATE … FROM (VALUES …) per 500 items).
+  const updates: { id: string; suspicion: number; reasons: string }[] = [];
+  const rescore = (it: Item, suspicion: number, reasons: readonly string[]) => {
+    const joined = reasons.join(',');
+    if (it.suspicion === suspicion && it.reasons === joined && it.fitId === input.fitId) return;
+    updates.push({ id: it.id, suspicion, reasons: joined });
+  };
+  const byId = new Map(items.map((it) => [it.id, it]));
+  for (const [id, c] of keepOpen) rescore(byId.get(id) as Item, c.suspicion, c.reasons);
+  for (const it of pinned) {
+    if (stale.has(it.sampleId)) continue;
+    const s = input.scoreOf(it.sampleId);
+    if (s) rescore(it, s.suspicion, s.reasons);
+  }
+  await bulkRescore(tx, input.provider, input.fitId, now, updates);
+  const rescored = updates.length;
+
+  if (create.length > 0) {
+    await tx.queueItem.createMany({
+      data: create.map(({ candidate, round }) => ({
+        projectId,
+        sampleId: candidate.sampleId,
+        round,
+        fitId: input.fitId,
+        revisionNumber: input.revisionNumber,
+        state: 'open',
+        suspicion: candidate.suspicion,
+        reasons: candidate.reasons.join(','),
+        createdAt: now,
+      })),
+    });
+  }
+  const awaiting = pinnedAwaiting + keepOpen.size + create.length;
+  return { created: create.length, rescored, removed, kept: pinned.length + keepOpen.size, awaiting };
+}
+
+async function bulkRescore(
+  tx: DbTx,
+  provider: Provider,
+  fitId: string,
+  now: Date,
+  updates: readonly { id: string; suspicion: number; reasons: string }[],
+): Promise<void> {
+  for (let start = 0; start < updates.length; start += 500) {
+    const slice = updates.slice(start, start + 500);
+    const values: unknown[] = [];
+    const tuples: string[] = [];
+    for (const u of slice) {
+      const b = values.length;
+      tuples.push(provider === 'postgresql' ? `($${b + 1}, $${b + 2}::double precision, $${b + 3})` : '(?, ?, ?)');
+      values.push(u.id, Number.isFinite(u.suspicion) ? u.suspicion : 0, u.reasons);
+    }
+    const n = values.length;
+    if (provider === 'postgresql') {
+      await tx.$executeRawUnsafe(
+        `UPDATE "QueueItem" AS q SET "suspicion" = v.s, "reasons" = v.r, "fitId" = $${n + 1}, "updatedAt" = $${n + 2} ` +
+          `FROM (VALUES ${tuples.join(', ')}) AS v(id, s, r) WHERE q."id" = v.id`,
+        ...values,
+        fitId,
+        now,
+      );
+    } else {
+      await tx.$executeRawUnsafe(
+        `UPDATE "QueueItem" SET "suspicion" = v.column2, "reasons" = v.column3, "fitId" = ?, "updatedAt" = ? ` +
+          `FROM (VALUES ${tuples.join(', ')}) AS v WHERE "QueueItem"."id" = v.column1`,
+        fitId,
+        now,
+        ...values,
+      );
+    }
+  }
+}

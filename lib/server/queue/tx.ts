@@ -1,0 +1,85 @@
+/**
+ * Write transactions for queue and fit state, safe on SQLite and PostgreSQL.
+ *
+ * Every state transition runs in `writeTx(db, lockKeys, fn)`:
+ * - The transaction's FIRST statement is a no-op UPDATE of the rows named in `lockKeys`
+ *   (`UPDATE "QueueItem" SET "round" = "round" WHERE id = …`, `UPDATE "Project" SET
+ *   "currentRevision" = "currentRevision" WHERE id = …`).
+ *   · SQLite: a write as the first statement takes the database write lock at once, so the
+ *     transaction behaves like BEGIN IMMEDIATE: a second connection waits on busy_timeout instead
+ *     of failing when it upgrades a read snapshot (SQLITE_BUSY_SNAPSHOT). Within one Prisma client
+ *     the better-sqlite3 adapter serialises transactions anyway.
+ *   · PostgreSQL (READ COMMITTED): the UPDATE takes the row lock, so two transactions on the same
+ *     item or project run one after the other, and every later statement of the second sees the
+ *     first one's committed writes.
+ * - Transient failures (SQLite busy, PostgreSQL serialization failure / deadlock, Prisma's
+ *   P2034 / P2028) are retried with jittered back-off; the function must therefore be idempotent
+ *   up to its commit (it is: all effects are inside the transaction).
+ */
+import { Prisma } from '../generated/sqlite/client';
+import type { Db, DbTx } from '../db';
+
+export type LockKey = { readonly table: 'QueueItem' | 'Project' | 'Fit'; readonly id: string };
+
+const TX_OPTIONS = { maxWait: 15_000, timeout: 30_000 } as const;
+
+export type Provider = 'sqlite' | 'postgresql';
+
+/** Which database a client talks to (read once from the client's generated configuration). */
+export function providerOf(client: Db): Provider {
+  // The generated client records its provider in `_activeProvider`; it is not part of the typed
+  // surface, so it is read through a narrow structural view. Both values are the only two we build.
+  const p = (client as unknown as { _activeProvider?: unknown })._activeProvider;
+  return p === 'postgresql' ? 'postgresql' : 'sqlite';
+}
+
+function messageOf(e: unknown): string {
+  return e instanceof Error ? `${e.name} ${e.message} ${String((e as { code?: unknown }).code ?? '')}` : String(e);
+}
+
+/** True for errors worth retrying: lock contention, serialization failures, deadlocks. */
+export function isTransient(e: unknown): boolean {
+  if (e instanceof Prisma.PrismaClientKnownRequestError && (e.code === 'P2034' || e.code === 'P2028')) return true;
+  const m = messageOf(e);
+  return /SQLITE_BUSY|database is locked|could not serialize|deadlock detected|40001|40P01|write conflict|Transaction already closed|Unable to start a transaction/i.test(
+    m,
+  );
+}
+
+async function lockRows(tx: DbTx, keys: readonly LockKey[]): Promise<void> {
+  // Fixed order (table, id) so that two transactions never lock the same rows in opposite order.
+  const sorted = [...keys].sort((a, b) => (a.table === b.table ? (a.id < b.id ? -1 : a.id > b.id ? 1 : 0) : a.table < b.table ? -1 : 1));
+  for (const k of sorted) {
+    if (k.table === 'QueueItem') await tx.$executeRaw`UPDATE "QueueItem" SET "round" = "round" WHERE "id" = ${k.id}`;
+    else if (k.table === 'Project') await tx.$executeRaw`UPDATE "Project" SET "currentRevision" = "currentRevision" WHERE "id" = ${k.id}`;
+    else await tx.$executeRaw`UPDATE "Fit" SET "progress" = "progress" WHERE "id" = ${k.id}`;
+  }
+}
+
+export interface WriteTxOptions {
+  readonly attempts?: number;
+}
+
+/**
+ * Runs `fn` in an interactive transaction that first locks `lockKeys` (see the module comment),
+ * retrying transient failures. Non-transient errors (including ActionError refusals) propagate
+ * at once, after the transaction rolled back.
+ */
+export async function writeTx<T>(db: Db, lockKeys: readonly LockKey[], fn: (tx: DbTx) => Promise<T>, options: WriteTxOptions = {}): Promise<T> {
+  const attempts = options.attempts ?? 8;
+  let lastError: unknown;
+  for (let attempt = 0; attempt < attempts; attempt++) {
+    try {
+      return await db.$transaction(async (tx) => {
+        await lockRows(tx, lockKeys);
+        return fn(tx);
+      }, TX_OPTIONS);
+    } catch (e) {
+      if (!isTransient(e)) throw e;
+      lastError = e;
+      const backoff = Math.min(400, 10 * 2 ** attempt) * (0.5 + Math.random());
+      await new Promise((r) => setTimeout(r, backoff));
+    }
+  }
+  throw lastError;
+}
