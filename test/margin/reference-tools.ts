@@ -211,6 +211,8 @@ export function readLibsvmModel(path: string, cols: number): LibsvmModel {
  * model's label order) and keeps the original order inside each class, so the support vectors of a
  * class are a subsequence of that class's rows; each is matched to the next row whose features agree
  * with the printed ones (8 significant digits). Throws if a support vector cannot be matched.
+ * Rows with identical features and label cannot be told apart; the earliest unmatched one is taken
+ * (their kernel values are identical, so decision values do not depend on the choice).
  */
 export function supportVectorRows(model: LibsvmModel, X: DenseRows, labels: ArrayLike<number>): Int32Array {
   const out = new Int32Array(model.totalSv);
