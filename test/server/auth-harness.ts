@@ -16,6 +16,7 @@ import { resetAuthOptionsForTests } from '@/lib/server/auth/options';
 import { sessionCookieName, sessionUserIdFromCookies } from '@/lib/server/auth/session';
 import { runWithRequestContext, type RequestContext } from '@/lib/server/authz/context';
 import { hashInvitationToken, newInvitationToken } from '@/lib/server/dal/invitations';
+import { newTokenSecret } from '@/lib/server/tokens';
 import { createTestDatabase, type TestDatabase } from './db-harness';
 
 export const TEST_SECRET = 'test-only-secret-0123456789abcdefghijklmnopqrstuvwxyz';
@@ -101,6 +102,10 @@ export type Fixture = {
   invitationA: { id: string; token: string };
   /** Revoked invitation of team A. */
   revokedInvitationA: { id: string; token: string };
+  /** Pipeline tokens (lib/server/tokens.ts): live ones of projects A and B, a revoked one of A. */
+  tokenA: { id: string; secret: string };
+  tokenB: { id: string; secret: string };
+  revokedTokenA: { id: string; secret: string };
 };
 
 async function user(client: Db, email: string, name: string): Promise<string> {
@@ -154,6 +159,16 @@ export async function buildFixture(client: Db, now: Date = new Date(), tag = '')
   };
   const invitationA = await invitation(false);
   const revokedInvitationA = await invitation(true);
+  const pipelineToken = async (projectId: string, createdById: string, revoked: boolean) => {
+    const { secret, prefix, hash } = newTokenSecret();
+    const t = await client.pipelineToken.create({
+      data: { projectId, name: revoked ? 'old ci' : 'ci', tokenHash: hash, prefix, createdById, revokedAt: revoked ? now : null },
+    });
+    return { id: t.id, secret };
+  };
+  const tokenA = await pipelineToken(projectA, leadA, false);
+  const tokenB = await pipelineToken(projectB, leadB, false);
+  const revokedTokenA = await pipelineToken(projectA, leadA, true);
   return {
     teamA,
     teamB,
@@ -168,5 +183,8 @@ export async function buildFixture(client: Db, now: Date = new Date(), tag = '')
     projectB,
     invitationA,
     revokedInvitationA,
+    tokenA,
+    tokenB,
+    revokedTokenA,
   };
 }

@@ -74,11 +74,38 @@ const ACTION_PROBES: Record<string, ActionProbe> = {
   revokeInvitation: { input: (f) => ({ invitationId: f.invitationA.id }), allowed: 'leadA' },
   changeRole: { input: (f) => ({ membershipId: f.membershipReviewerA, role: 'lead' }), allowed: 'leadA' },
   removeMember: { input: (f) => ({ membershipId: f.membershipReviewerA }), allowed: 'leadA' },
+  createPipelineToken: { input: (f) => ({ projectId: f.projectA, name: 'nightly embeddings' }), allowed: 'leadA' },
+  revokePipelineToken: { input: (f) => ({ tokenId: f.tokenA.id }), allowed: 'leadA' },
 };
 
-type RouteProbe = { method: string; params: (f: Fixture) => Record<string, string>; body?: (f: Fixture) => unknown };
+type RouteProbe = {
+  method: string;
+  params: (f: Fixture) => Record<string, string | string[]>;
+  body?: (f: Fixture) => unknown;
+  /** Query string of the request (routes that stream their body take their input from it). */
+  query?: (f: Fixture) => Record<string, string>;
+  /** Raw body text instead of JSON (uploads). */
+  rawBody?: string;
+};
+const CSV_BODY = 'id,label,x,y\nprobe-1,left,0.5,-1\n';
 const ROUTE_PROBES: Record<string, RouteProbe> = {
   health: { method: 'GET', params: () => ({}) },
+  importData: { method: 'POST', params: (f) => ({ projectId: f.projectA }), query: () => ({ fileName: 'probe.csv' }), rawBody: CSV_BODY },
+  uploadImportImage: {
+    method: 'POST',
+    params: (f) => ({ projectId: f.projectA }),
+    query: () => ({ uploadBatch: 'probe-batch-0123456789', name: 'cat.png' }),
+    rawBody: '\u0089PNG\r\n\u001a\n0000',
+  },
+  exportData: { method: 'GET', params: (f) => ({ projectId: f.projectA }), query: () => ({ format: 'csv' }) },
+  projectImage: {
+    method: 'GET',
+    params: (f) => ({ projectId: f.projectA, path: ['probe-batch-0123456789', `${'0'.repeat(32)}.png`] }),
+  },
+  // Pipeline API (access "token"): called with bearer tokens instead of sessions, see below.
+  apiSamples: { method: 'POST', params: (f) => ({ projectId: f.projectA }), rawBody: CSV_BODY },
+  apiLabels: { method: 'GET', params: (f) => ({ projectId: f.projectA }) },
+  apiRevisions: { method: 'GET', params: (f) => ({ projectId: f.projectA }) },
 };
 /** Route entries served by next-auth itself: not callable outside Next's request scope. */
 const NEXT_AUTH_ROUTES = new Set(['nextAuth']);
@@ -285,18 +312,40 @@ describe('every endpoint refuses hostile callers and leaves the database unchang
   for (const [name, entry] of routeEntries) {
     if (NEXT_AUTH_ROUTES.has(name)) continue;
     describe(`route ${name} (${entry.access}, via ${entry.via})`, () => {
-      const routeStatus = async (cookie: string | null) => {
+      const routeStatus = async (cookie: string | null, bearer?: string) => {
         const p = ROUTE_PROBES[name];
         if (!p) throw new Error(`no probe for route ${name}`);
         const fn = await loadRoute(entry, p.method);
-        const req = new Request('http://127.0.0.1/probe', {
+        const url = new URL('http://127.0.0.1/probe');
+        for (const [k, v] of Object.entries(p.query?.(f) ?? {})) url.searchParams.set(k, v);
+        const headers: Record<string, string> = { 'content-type': p.rawBody === undefined ? 'application/json' : 'text/csv' };
+        if (bearer !== undefined) headers.authorization = `Bearer ${bearer}`;
+        const req = new Request(url, {
           method: p.method,
-          headers: { 'content-type': 'application/json' },
-          body: p.body ? JSON.stringify(p.body(f)) : undefined,
+          headers,
+          body: p.rawBody ?? (p.body ? JSON.stringify(p.body(f)) : undefined),
         });
-        const res = await call(contextFor(cookie), () => fn(req, { params: Promise.resolve(p.params(f)) }));
+        const res = await call(contextFor(cookie), () =>
+          fn(req, { params: Promise.resolve(p.params(f) as Record<string, string>) }),
+        );
+        await res.text(); // let a streamed answer (import progress) finish before comparing
         return { status: res.status };
       };
+      if (entry.access === 'token') {
+        // Pipeline routes take a bearer token, never a session.
+        it('(a) without a token, even with a session of the owning team', async () => {
+          await expectRefusedUnchanged(() => routeStatus(null), [401]);
+          await expectRefusedUnchanged(() => routeStatus(cookies.leadA), [401]);
+        });
+        it("(b) with another team's project token", async () => {
+          await expectRefusedUnchanged(() => routeStatus(null, f.tokenB.secret), [404]);
+        });
+        it('(c) with a revoked or made-up token', async () => {
+          await expectRefusedUnchanged(() => routeStatus(null, f.revokedTokenA.secret), [401]);
+          await expectRefusedUnchanged(() => routeStatus(null, `blp_${'x'.repeat(43)}`), [401]);
+        });
+        return;
+      }
       const expected = (who: 'none' | 'other' | 'observer'): number[] => {
         if (entry.access === 'public') return [200]; // public routes answer anyone; they must not write
         if (who === 'none') return [401];

@@ -40,7 +40,7 @@ const MINIMUM_ROLE: Record<TeamRequirement, Role> = { member: 'observer', review
 
 // ───────────────────────── registry check at definition time ─────────────────────────
 
-function assertRegistered(name: string, kind: 'action' | 'route', access: Access): void {
+export function assertRegistered(name: string, kind: 'action' | 'route', access: Access): void {
   const entry = (REGISTRY as Record<string, { kind: string; access: string } | undefined>)[name];
   if (!entry) throw new Error(`authz: "${name}" is not in lib/server/authz/registry.ts`);
   if (entry.kind !== kind) throw new Error(`authz: "${name}" is registered as a ${entry.kind}, defined as a ${kind}`);
@@ -226,6 +226,11 @@ export function defineRoute<S extends z.ZodType, T>(
     role: TeamRequirement;
     resource: (input: z.output<S>) => ResourceRef;
     bodyLimitBytes?: number;
+    /**
+     * 'stream': the input is the route params merged with the query string for every method,
+     * and the body is left unread for the handler (uploads streamed from `req.body`).
+     */
+    body?: 'json' | 'stream';
   },
   handler: (input: z.output<S>, caller: MemberCaller, req: Request) => Promise<T | Response>,
 ): (req: Request, context: RouteContext) => Promise<Response> {
@@ -238,7 +243,7 @@ export function defineRoute<S extends z.ZodType, T>(
       if (!user) return failure(401, MESSAGES.unauthenticated);
       const params = (await context.params) ?? {};
       let raw: unknown;
-      if (req.method === 'GET' || req.method === 'DELETE' || req.method === 'HEAD') {
+      if (req.method === 'GET' || req.method === 'DELETE' || req.method === 'HEAD' || spec.body === 'stream') {
         raw = { ...Object.fromEntries(new URL(req.url).searchParams), ...params };
       } else {
         const body = await readJsonBody(req, spec.bodyLimitBytes ?? DEFAULT_BODY_LIMIT_BYTES);

@@ -19,10 +19,12 @@
  *   member     any member (lead, reviewer, observer) of the team owning the resource
  *   reviewer   reviewer or lead of that team
  *   lead       lead of that team
+ *   token      a pipeline token of the project in the URL (Authorization: Bearer; see
+ *              lib/server/authz/token-route.ts); sessions are not accepted there
  * writes: true when the endpoint changes team-owned data (observers are refused those).
  */
 
-export type Access = 'public' | 'signed-in' | 'member' | 'reviewer' | 'lead';
+export type Access = 'public' | 'signed-in' | 'member' | 'reviewer' | 'lead' | 'token';
 export type HttpMethod = 'GET' | 'POST' | 'PUT' | 'PATCH' | 'DELETE';
 
 export type ActionEntry = {
@@ -47,7 +49,7 @@ export type RouteEntry = {
    * (CSRF-checked by next-auth; sign-in goes through our throttled `authorize`). static: answers
    * a constant and reads nothing.
    */
-  via: 'defineRoute' | 'next-auth' | 'static';
+  via: 'defineRoute' | 'defineTokenRoute' | 'next-auth' | 'static';
   summary: string;
 };
 
@@ -145,6 +147,87 @@ export const REGISTRY = {
     writes: false,
     via: 'static',
     summary: 'Liveness: answers {status: "ok"}; reads nothing.',
+  },
+
+  // ── Data area: imports, exports, pipeline tokens (lib/server/import, export, tokens.ts) ──
+  createPipelineToken: {
+    kind: 'action',
+    file: 'app/actions/create-pipeline-token.ts',
+    exportName: 'createPipelineToken',
+    access: 'lead',
+    writes: true,
+    summary: "Creates a project's pipeline token; the secret is returned once and stored only as a hash.",
+  },
+  revokePipelineToken: {
+    kind: 'action',
+    file: 'app/actions/revoke-pipeline-token.ts',
+    exportName: 'revokePipelineToken',
+    access: 'lead',
+    writes: true,
+    summary: 'Revokes a pipeline token; calls with it are refused from then on.',
+  },
+  importData: {
+    kind: 'route',
+    file: 'app/api/projects/[projectId]/imports/route.ts',
+    methods: ['POST'],
+    access: 'lead',
+    writes: true,
+    via: 'defineRoute',
+    summary: 'Streams an uploaded CSV / JSON Lines file into the project (all or nothing); answers with progress lines and the outcome.',
+  },
+  uploadImportImage: {
+    kind: 'route',
+    file: 'app/api/projects/[projectId]/imports/images/route.ts',
+    methods: ['POST'],
+    access: 'lead',
+    writes: true,
+    via: 'defineRoute',
+    summary: 'Stores one image sent with an import (PNG, JPEG, GIF, WebP) under a generated name.',
+  },
+  exportData: {
+    kind: 'route',
+    file: 'app/api/projects/[projectId]/export/route.ts',
+    methods: ['GET'],
+    access: 'lead',
+    writes: false,
+    via: 'defineRoute',
+    summary: 'Downloads the current labels with provenance (CSV or JSON Lines) or the audit report (JSON).',
+  },
+  projectImage: {
+    kind: 'route',
+    file: 'app/api/projects/[projectId]/images/[...path]/route.ts',
+    methods: ['GET'],
+    access: 'member',
+    writes: false,
+    via: 'defineRoute',
+    summary: "Serves an image uploaded with one of the project's imports.",
+  },
+  apiSamples: {
+    kind: 'route',
+    file: 'app/api/v1/projects/[projectId]/samples/route.ts',
+    methods: ['POST'],
+    access: 'token',
+    writes: true,
+    via: 'defineTokenRoute',
+    summary: 'Pipeline API: adds or updates samples from a CSV / JSON Lines body (all or nothing).',
+  },
+  apiLabels: {
+    kind: 'route',
+    file: 'app/api/v1/projects/[projectId]/labels/route.ts',
+    methods: ['GET'],
+    access: 'token',
+    writes: false,
+    via: 'defineTokenRoute',
+    summary: 'Pipeline API: current labels with provenance, optionally only those changed since a revision.',
+  },
+  apiRevisions: {
+    kind: 'route',
+    file: 'app/api/v1/projects/[projectId]/revisions/route.ts',
+    methods: ['GET'],
+    access: 'token',
+    writes: false,
+    via: 'defineTokenRoute',
+    summary: 'Pipeline API: the revisions of the project with their fit status and metrics.',
   },
 } as const satisfies Record<string, ActionEntry | RouteEntry>;
 

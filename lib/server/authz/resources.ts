@@ -11,7 +11,8 @@ export type ResourceRef =
   | { teamId: string }
   | { projectId: string }
   | { invitationId: string }
-  | { membershipId: string };
+  | { membershipId: string }
+  | { tokenId: string };
 
 export async function teamOfResource(client: Db | DbTx, ref: ResourceRef): Promise<string | null> {
   if ('teamId' in ref) {
@@ -25,6 +26,10 @@ export async function teamOfResource(client: Db | DbTx, ref: ResourceRef): Promi
   if ('invitationId' in ref) {
     const i = await client.invitation.findUnique({ where: { id: ref.invitationId }, select: { teamId: true } });
     return i?.teamId ?? null;
+  }
+  if ('tokenId' in ref) {
+    const t = await client.pipelineToken.findUnique({ where: { id: ref.tokenId }, select: { project: { select: { teamId: true } } } });
+    return t?.project.teamId ?? null;
   }
   const m = await client.membership.findUnique({ where: { id: ref.membershipId }, select: { teamId: true } });
   return m?.teamId ?? null;
