@@ -489,6 +489,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
     // w̃ from the previous solution, corrected by the αᵢyᵢ that change.
     w.set(prev.w);
     wb = B > 0 ? prev.b / B : 0;
+    let changed = 0;
     for (let i = 0; i < n; i++) {
       const ap = prev.alpha[i];
       if (!(ap >= 0 && ap < Infinity)) throw new EngineInputError(`warmStartFrom: previous α[${i}] = ${ap}`);
@@ -499,11 +500,15 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
       alpha[i] = a;
       const delta = a * y[i] - ap * yp;
       if (delta !== 0) {
+        changed++;
         if (isF32) axpy32(delta, x32, i * d, d, w);
         else axpy64(delta, x64, i * d, d, w);
         wb += delta * B;
       }
     }
+    // Nothing changed (same labels and bounds, or only samples with αᵢ = 0 excluded): the previous
+    // point may already be optimal, so check it first.
+    if (changed === 0) readOnlyNext = true;
     // First active set from the previous solution: changed samples, free αᵢ and samples whose KKT
     // condition failed there; the others start shrunk.
     const pd = prev.decision;
