@@ -187,6 +187,31 @@ export type ChangeRoleInput = z.infer<typeof ChangeRoleInput>;
 export const RemoveMemberInput = z.object({ membershipId: IdSchema });
 export type RemoveMemberInput = z.infer<typeof RemoveMemberInput>;
 
+/** Shown under every new-password field. */
+export const PASSWORD_HINT = `At least ${LIMITS.passwordMin} characters (up to ${LIMITS.passwordMax}). Any characters, spaces included; a few words strung together work well. Common passwords are refused.`;
+
+/** Sign-in answers, shared by the server (lib/server/auth/sign-in.ts) and the sign-in form. */
+export const SIGN_IN_MESSAGES = {
+  /** next-auth passes a thrown message to the client as `error`: `${throttledPrefix}${seconds}`. */
+  throttledPrefix: 'throttled:',
+  invalid: 'That email and password do not match an account. Check both and try again.',
+  throttled: (seconds: number) =>
+    `Too many sign-in attempts. Wait ${seconds} second${seconds === 1 ? '' : 's'} and try again.`,
+  missing: 'Enter your email address and your password.',
+  failed: 'Signing in did not work just now. Try again in a moment.',
+} as const;
+
+/** The message for next-auth's client-side `error` value. */
+export function signInErrorMessage(error: string | null | undefined): string {
+  if (!error) return SIGN_IN_MESSAGES.failed;
+  if (error === 'CredentialsSignin') return SIGN_IN_MESSAGES.invalid;
+  if (error.startsWith(SIGN_IN_MESSAGES.throttledPrefix)) {
+    const seconds = Number(error.slice(SIGN_IN_MESSAGES.throttledPrefix.length));
+    if (Number.isFinite(seconds) && seconds > 0) return SIGN_IN_MESSAGES.throttled(Math.ceil(seconds));
+  }
+  return SIGN_IN_MESSAGES.failed;
+}
+
 // ───────────────────────── audit log vocabulary ─────────────────────────
 
 export const AUDIT_ACTIONS = [

@@ -3,7 +3,7 @@
  * constant amount of hashing work whether or not the account exists, audit of every outcome,
  * and an upgrade of old password hashes on success.
  */
-import { SignInInput } from '../../domain';
+import { SIGN_IN_MESSAGES, SignInInput } from '../../domain';
 import type { Db } from '../db';
 import { hashPassword, needsRehash, verifyPassword } from '../password';
 import { recordAudit } from './audit';
@@ -19,13 +19,8 @@ import {
   type ThrottlePolicy,
 } from './throttle';
 
-export const SIGN_IN_ERRORS = {
-  /** Thrown through next-auth as `${throttledPrefix}${seconds}`; see components/SignInForm. */
-  throttledPrefix: 'throttled:',
-  invalid: 'That email and password do not match an account. Check both and try again.',
-  throttled: (seconds: number) =>
-    `Too many sign-in attempts. Wait ${seconds} second${seconds === 1 ? '' : 's'} and try again.`,
-} as const;
+/** Messages live in lib/domain.ts (shared with the sign-in form). */
+export const SIGN_IN_ERRORS = SIGN_IN_MESSAGES;
 
 export type SignInOutcome =
   | { ok: true; userId: string }
