@@ -1,5 +1,6 @@
 import type { Metadata } from 'next';
 import { CreateTeamForm } from '@/components/CreateTeamForm';
+import { MyTeams } from '@/components/MyTeams';
 import { TeamInvitations } from '@/components/TeamInvitations';
 import { TeamMembers } from '@/components/TeamMembers';
 import { ROLE_LABEL } from '@/lib/domain';
@@ -68,6 +69,16 @@ export default async function TeamPage() {
             expiresLabel: dateLabel(p.expiresAt),
             createdByName: p.createdByName,
           }))}
+        />
+      </section>
+
+      <section aria-labelledby="my-teams-heading" className="max-w-xl space-y-3">
+        <h2 id="my-teams-heading" className="text-lg font-semibold">
+          Your teams
+        </h2>
+        <MyTeams
+          teams={current.all.map((t) => ({ teamId: t.teamId, name: t.name, role: t.role }))}
+          currentTeamId={team.teamId}
         />
       </section>
 
