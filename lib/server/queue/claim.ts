@@ -20,6 +20,7 @@ import type { TeamScope } from '../authz/scope';
 import { forbidden } from '../authz/errors';
 import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
+import { writeTx } from './tx';
 
 export interface Claimed {
   readonly itemId: string;
@@ -41,84 +42,97 @@ export async function claimNext(
   const until = new Date(now.getTime() + QUEUE_TIMING.leaseSeconds * 1000);
   const me = actor.userId;
 
-  if (input.skipItemId) {
-    await db.queueItem.updateMany({
-      where: { id: input.skipItemId, projectId: project.id, leaseUserId: me },
-      data: { leaseUserId: null, leaseExpiresAt: null },
-    });
-  }
-
-  // A live lease of mine: renew it and hand the same item back.
-  const held = await db.queueItem.findFirst({
-    where: {
-      projectId: project.id,
-      leaseUserId: me,
-      leaseExpiresAt: { gt: now },
-      state: { in: AWAITING },
-      votes: { none: { userId: me } },
-      ...(input.skipItemId ? { id: { not: input.skipItemId } } : {}),
-    },
-    orderBy: { leaseExpiresAt: 'desc' },
-    select: { id: true },
-  });
-  if (held) {
-    const renewed = await db.queueItem.updateMany({
-      where: { id: held.id, leaseUserId: me, state: { in: AWAITING } },
-      data: { leaseExpiresAt: until },
-    });
-    if (renewed.count === 1) {
-      // One lease per reviewer: drop any other (stale) lease this user still holds here.
-      await db.queueItem.updateMany({
-        where: { projectId: project.id, leaseUserId: me, id: { not: held.id } },
-        data: { leaseUserId: null, leaseExpiresAt: null },
-      });
-      return { itemId: held.id, leaseExpiresAt: until };
-    }
-  }
-
-  const undoStart = new Date(now.getTime() - QUEUE_TIMING.undoSeconds * 1000);
-  for (let round = 0; round < 4; round++) {
-    const candidates = await db.queueItem.findMany({
-      where: {
-        projectId: project.id,
-        state: { in: AWAITING },
-        ...(input.skipItemId ? { id: { not: input.skipItemId } } : {}),
-        OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }, { leaseUserId: me }],
-        votes: { none: { userId: me } },
-        NOT: { votes: { some: { createdAt: { gt: undoStart } } } },
-      },
-      // 'one-vote' sorts before 'open'.
-      orderBy: [{ state: 'asc' }, { suspicion: 'desc' }, { id: 'asc' }],
-      take: 6,
-      select: { id: true },
-    });
-    if (candidates.length === 0) return null;
-    for (const c of candidates) {
-      const taken = await db.queueItem.updateMany({
-        where: {
-          id: c.id,
-          state: { in: AWAITING },
-          OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }, { leaseUserId: me }],
-        },
-        data: { leaseUserId: me, leaseExpiresAt: until },
-      });
-      if (taken.count === 1) {
-        await db.queueItem.updateMany({
-          where: { projectId: project.id, leaseUserId: me, id: { not: c.id } },
+  return writeTx(
+    db,
+    [],
+    async (tx) => {
+      if (input.skipItemId) {
+        await tx.queueItem.updateMany({
+          where: { id: input.skipItemId, projectId: project.id, leaseUserId: me },
           data: { leaseUserId: null, leaseExpiresAt: null },
         });
-        return { itemId: c.id, leaseExpiresAt: until };
       }
-    }
-  }
-  return null;
+      const releaseOthers = (keep: string) =>
+        tx.queueItem.updateMany({
+          where: { projectId: project.id, leaseUserId: me, id: { not: keep } },
+          data: { leaseUserId: null, leaseExpiresAt: null },
+        });
+
+      // A live lease of mine: renew it and hand the same item back.
+      const held = await tx.queueItem.findFirst({
+        where: {
+          projectId: project.id,
+          leaseUserId: me,
+          leaseExpiresAt: { gt: now },
+          state: { in: AWAITING },
+          votes: { none: { userId: me } },
+          ...(input.skipItemId ? { id: { not: input.skipItemId } } : {}),
+        },
+        orderBy: { leaseExpiresAt: 'desc' },
+        select: { id: true },
+      });
+      if (held) {
+        const renewed = await tx.queueItem.updateMany({
+          where: { id: held.id, leaseUserId: me, state: { in: AWAITING } },
+          data: { leaseExpiresAt: until },
+        });
+        if (renewed.count === 1) {
+          // One lease per reviewer: drop any other (stale) lease this user still holds here.
+          await releaseOthers(held.id);
+          return { itemId: held.id, leaseExpiresAt: until };
+        }
+      }
+
+      const undoStart = new Date(now.getTime() - QUEUE_TIMING.undoSeconds * 1000);
+      for (let round = 0; round < 4; round++) {
+        const candidates = await tx.queueItem.findMany({
+          where: {
+            projectId: project.id,
+            state: { in: AWAITING },
+            ...(input.skipItemId ? { id: { not: input.skipItemId } } : {}),
+            OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }, { leaseUserId: me }],
+            votes: { none: { userId: me } },
+            NOT: { votes: { some: { createdAt: { gt: undoStart } } } },
+          },
+          // 'one-vote' sorts before 'open'.
+          orderBy: [{ state: 'asc' }, { suspicion: 'desc' }, { id: 'asc' }],
+          take: 6,
+          select: { id: true },
+        });
+        if (candidates.length === 0) return null;
+        for (const c of candidates) {
+          // Conditional take: of two reviewers racing for this item exactly one matches.
+          const taken = await tx.queueItem.updateMany({
+            where: {
+              id: c.id,
+              state: { in: AWAITING },
+              OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }, { leaseUserId: me }],
+            },
+            data: { leaseUserId: me, leaseExpiresAt: until },
+          });
+          if (taken.count === 1) {
+            await releaseOthers(c.id);
+            return { itemId: c.id, leaseExpiresAt: until };
+          }
+        }
+      }
+      return null;
+    },
+    { sqliteLock: { table: 'Project', id: project.id } },
+  );
 }
 
 /** Gives up the caller's lease on an item (e.g. leaving the screen). */
 export async function releaseLease(deps: QueueDeps, scope: TeamScope, actor: Actor, input: { projectId: string; itemId: string }): Promise<void> {
   const project = await projectInScope(deps.db, scope, input.projectId);
-  await deps.db.queueItem.updateMany({
-    where: { id: input.itemId, projectId: project.id, leaseUserId: actor.userId },
-    data: { leaseUserId: null, leaseExpiresAt: null },
-  });
+  await writeTx(
+    deps.db,
+    [],
+    (tx) =>
+      tx.queueItem.updateMany({
+        where: { id: input.itemId, projectId: project.id, leaseUserId: actor.userId },
+        data: { leaseUserId: null, leaseExpiresAt: null },
+      }),
+    { sqliteLock: { table: 'Project', id: project.id } },
+  );
 }

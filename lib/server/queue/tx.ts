@@ -12,6 +12,10 @@
  *   · PostgreSQL (READ COMMITTED): the UPDATE takes the row lock, so two transactions on the same
  *     item or project run one after the other, and every later statement of the second sees the
  *     first one's committed writes.
+ * - SQLite allows one writer at a time per database anyway, so on SQLite every writeTx of this
+ *   process also queues on one in-process mutex: several Prisma clients (connections) in one
+ *   process then take turns instead of spinning on the busy handler. Other processes are held
+ *   off by the write lock and busy_timeout.
  * - Transient failures (SQLite busy, PostgreSQL serialization failure / deadlock, Prisma's
  *   P2034 / P2028) are retried with jittered back-off; the function must therefore be idempotent
  *   up to its commit (it is: all effects are inside the transaction).
@@ -58,6 +62,27 @@ async function lockRows(tx: DbTx, keys: readonly LockKey[]): Promise<void> {
 
 export interface WriteTxOptions {
   readonly attempts?: number;
+  /**
+   * SQLite only: a row to lock (no-op UPDATE) when `lockKeys` is empty, so the transaction takes the
+   * write lock with its first statement. PostgreSQL does not lock it (no contention for readers of
+   * that row).
+   */
+  readonly sqliteLock?: LockKey;
+}
+
+let sqliteTail: Promise<void> = Promise.resolve();
+
+/** Runs `fn` when every earlier SQLite write transaction of this process has finished. */
+async function sqliteTurn<T>(fn: () => Promise<T>): Promise<T> {
+  const previous = sqliteTail;
+  let release: () => void = () => {};
+  sqliteTail = new Promise<void>((r) => (release = r));
+  await previous;
+  try {
+    return await fn();
+  } finally {
+    release();
+  }
 }
 
 /**
@@ -67,13 +92,17 @@ export interface WriteTxOptions {
  */
 export async function writeTx<T>(db: Db, lockKeys: readonly LockKey[], fn: (tx: DbTx) => Promise<T>, options: WriteTxOptions = {}): Promise<T> {
   const attempts = options.attempts ?? 8;
+  const sqlite = providerOf(db) === 'sqlite';
+  const keys = sqlite && lockKeys.length === 0 && options.sqliteLock ? [options.sqliteLock] : lockKeys;
+  const once = () =>
+    db.$transaction(async (tx) => {
+      await lockRows(tx, keys);
+      return fn(tx);
+    }, TX_OPTIONS);
   let lastError: unknown;
   for (let attempt = 0; attempt < attempts; attempt++) {
     try {
-      return await db.$transaction(async (tx) => {
-        await lockRows(tx, lockKeys);
-        return fn(tx);
-      }, TX_OPTIONS);
+      return await (sqlite ? sqliteTurn(once) : once());
     } catch (e) {
       if (!isTransient(e)) throw e;
       lastError = e;

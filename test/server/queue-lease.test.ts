@@ -1,0 +1,117 @@
+// "Next" and its lease, with an injected clock (no waiting). Rules from lib/server/queue/claim.ts:
+// 90 s leases, one holder at a time, one-vote items first, never an item the caller voted on, never
+// a one-vote item inside its 10 s undo window.
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { createTestDatabase, type TestDatabase } from './db-harness';
+import { createItems, createQueueFixture, manualClock, refusedWith } from './queue-fixtures';
+import type { Db } from '@/lib/server/db';
+import { claimNext, releaseLease } from '@/lib/server/queue/claim';
+import { castVote } from '@/lib/server/queue/vote';
+
+let t: TestDatabase;
+let db: Db;
+
+beforeAll(async () => {
+  t = await createTestDatabase();
+  await t.migrate();
+  db = t.client();
+});
+afterAll(async () => {
+  await t.drop();
+});
+
+describe('claiming the next item', () => {
+  it('hands out the most suspicious free item, one reviewer at a time, and renews on a repeated claim', async () => {
+    const f = await createQueueFixture(db, { samples: 4 });
+    const items = await createItems(db, f); // suspicion descending: items[0] highest
+    const clock = manualClock();
+    const deps = { db, clock };
+    const [a, b, c] = f.reviewers;
+    const ca = await claimNext(deps, f.scope, a, { projectId: f.projectId });
+    expect(ca?.itemId).toBe(items[0]);
+    // hand-worked: claimed at 09:00:00, lease 90 s
+    expect(ca?.leaseExpiresAt.toISOString()).toBe('2030-01-01T09:01:30.000Z');
+    const cb = await claimNext(deps, f.scope, b, { projectId: f.projectId });
+    expect(cb?.itemId).toBe(items[1]);
+    clock.advance(60_000);
+    const again = await claimNext(deps, f.scope, a, { projectId: f.projectId });
+    expect(again?.itemId).toBe(items[0]);
+    expect(again?.leaseExpiresAt.toISOString()).toBe('2030-01-01T09:02:30.000Z');
+    // c gets neither leased item
+    const cc = await claimNext(deps, f.scope, c, { projectId: f.projectId });
+    expect(cc?.itemId).toBe(items[2]);
+    // a lease holds one item per reviewer: a's only lease is items[0]
+    const leased = await db.queueItem.findMany({ where: { projectId: f.projectId, leaseUserId: a.userId } });
+    expect(leased.map((i) => i.id)).toEqual([items[0]]);
+  });
+
+  it('an expired lease frees the item for someone else', async () => {
+    const f = await createQueueFixture(db, { samples: 1 });
+    const [item] = await createItems(db, f);
+    const clock = manualClock();
+    const deps = { db, clock };
+    const [a, b] = f.reviewers;
+    expect((await claimNext(deps, f.scope, a, { projectId: f.projectId }))?.itemId).toBe(item);
+    clock.advance(89_999);
+    expect(await claimNext(deps, f.scope, b, { projectId: f.projectId })).toBeNull();
+    // While a's lease is live, b cannot vote on it either.
+    const r = await refusedWith(castVote(deps, f.scope, b, { projectId: f.projectId, itemId: item, decision: 'keep' }));
+    expect(r).toEqual({ status: 409, message: 'Another reviewer is working on this item right now. Take the next one.' });
+    clock.advance(2);
+    expect((await claimNext(deps, f.scope, b, { projectId: f.projectId }))?.itemId).toBe(item);
+  });
+
+  it('a one-vote item goes to a second reviewer after the undo window, never back to its voter, and before open items', async () => {
+    const f = await createQueueFixture(db, { samples: 3 });
+    const items = await createItems(db, f);
+    const clock = manualClock();
+    const deps = { db, clock };
+    const [a, b] = f.reviewers;
+    // a takes and votes on the LEAST suspicious item.
+    await castVote(deps, f.scope, a, { projectId: f.projectId, itemId: items[2], decision: 'keep' });
+    clock.advance(5_000);
+    // Inside a's undo window the item is not handed out: b gets the most suspicious open item.
+    expect((await claimNext(deps, f.scope, b, { projectId: f.projectId }))?.itemId).toBe(items[0]);
+    await releaseLease(deps, f.scope, b, { projectId: f.projectId, itemId: items[0] });
+    clock.advance(5_001);
+    // After the window, the one-vote item comes first for b ...
+    expect((await claimNext(deps, f.scope, b, { projectId: f.projectId }))?.itemId).toBe(items[2]);
+    // ... and never for a, who voted on it.
+    expect((await claimNext(deps, f.scope, a, { projectId: f.projectId }))?.itemId).toBe(items[0]);
+  });
+
+  it('skip releases the lease and moves on; closed and split items are never handed out; observers cannot claim', async () => {
+    const f = await createQueueFixture(db, { samples: 3 });
+    const items = await createItems(db, f);
+    const clock = manualClock();
+    const deps = { db, clock };
+    const [a, b, c] = f.reviewers;
+    expect((await claimNext(deps, f.scope, a, { projectId: f.projectId }))?.itemId).toBe(items[0]);
+    const skipped = await claimNext(deps, f.scope, a, { projectId: f.projectId, skipItemId: items[0] });
+    expect(skipped?.itemId).toBe(items[1]);
+    expect((await db.queueItem.findUniqueOrThrow({ where: { id: items[0] } })).leaseUserId).toBeNull();
+    // Close items[0] (two keeps) and split items[2].
+    await castVote(deps, f.scope, b, { projectId: f.projectId, itemId: items[0], decision: 'keep' });
+    await castVote(deps, f.scope, c, { projectId: f.projectId, itemId: items[0], decision: 'keep' });
+    await castVote(deps, f.scope, b, { projectId: f.projectId, itemId: items[2], decision: 'keep' });
+    const s2 = await db.sample.findFirstOrThrow({ where: { queueItems: { some: { id: items[2] } } } });
+    await castVote(deps, f.scope, c, { projectId: f.projectId, itemId: items[2], decision: 'relabel', label: f.classes.find((x) => x !== s2.currentLabel) as string });
+    clock.advance(20_000);
+    await releaseLease(deps, f.scope, a, { projectId: f.projectId, itemId: items[1] });
+    const d = f.reviewers[0];
+    expect((await claimNext(deps, f.scope, d, { projectId: f.projectId }))?.itemId).toBe(items[1]);
+    expect(await claimNext(deps, f.scope, b, { projectId: f.projectId })).toBeNull();
+    const obs = await refusedWith(claimNext(deps, f.scope, f.observer, { projectId: f.projectId }));
+    expect(obs).toEqual({ status: 403, message: 'Observers can read the queue but cannot vote.' });
+  });
+
+  it('two reviewers racing for the only free item: exactly one gets it', async () => {
+    const f = await createQueueFixture(db, { samples: 1, reviewers: 8 });
+    const [item] = await createItems(db, f);
+    const clock = manualClock();
+    const results = await Promise.all(f.reviewers.map((r) => claimNext({ db, clock }, f.scope, r, { projectId: f.projectId })));
+    const winners = results.filter((x) => x !== null);
+    expect(winners).toHaveLength(1);
+    expect(winners[0]?.itemId).toBe(item);
+  });
+});
