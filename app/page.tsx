@@ -4,7 +4,8 @@ import { requireUserForPage } from '@/lib/server/authz/page';
 import { listProjects } from '@/lib/server/dal/projects';
 import { currentTeamOf } from '@/lib/server/dal/teams';
 
-export const metadata: Metadata = { title: 'Projects' };
+// The root segment shares the layout's level, so the layout's title template does not apply here.
+export const metadata: Metadata = { title: { absolute: 'Projects · Borderline' } };
 export const dynamic = 'force-dynamic';
 
 const count = (n: number, one: string, many: string) => `${n.toLocaleString('en-US')} ${n === 1 ? one : many}`;

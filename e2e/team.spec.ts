@@ -14,7 +14,7 @@ async function createInvitationLink(page: Page, role: 'Lead' | 'Reviewer' | 'Obs
   await page.getByLabel('Role', { exact: true }).selectOption({ label: role });
   await page.getByLabel('Note (optional)').fill(note);
   await page.getByRole('button', { name: 'Create invitation link' }).click();
-  const linkBox = page.getByLabel('Invitation link');
+  const linkBox = page.getByRole('textbox', { name: 'Invitation link' });
   await expect(linkBox).toBeVisible();
   const link = await linkBox.inputValue();
   expect(link).toMatch(/\/invite\/[A-Za-z0-9_-]{43}$/);
@@ -110,7 +110,7 @@ test('a wrong password gets a clear message and no session', async ({ browser })
   await page.getByLabel('Email address').fill(reviewer.email);
   await page.getByLabel('Password', { exact: true }).fill('not-the-password-at-all');
   await page.getByRole('button', { name: 'Sign in' }).click();
-  await expect(page.getByRole('alert')).toContainText('That email and password do not match an account.');
+  await expect(page.getByText('That email and password do not match an account. Check both and try again.')).toBeVisible();
   await page.goto('/');
   await expect(page).toHaveURL(/\/signin/);
   await context.close();
