@@ -74,7 +74,7 @@ export const ProjectSettingsSchema = z.object({
   coef0: z.number().finite().min(-1e6).max(1e6).default(0),
   /** Pick C (and γ for RBF) by cross-validation on a log grid before each full fit. */
   autoSelect: z.boolean().default(false),
-  /** auto: dual coordinate descent for the linear kernel on more than 5,000 samples, else SMO. */
+  /** auto: dual coordinate descent for the linear kernel on more than 1,000 samples, else SMO. */
   solver: z.enum(SOLVERS, { error: 'Choose a solver: auto, smo or dcd.' }).default('auto'),
   scale: z.enum(SCALES, { error: 'Choose a scaling: standard, l2 or none.' }).default('standard'),
   /** Folds of the out-of-fold margins. */

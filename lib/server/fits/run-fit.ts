@@ -42,7 +42,7 @@ import { insertStandings, packDetail, unpackDetail, type StandingRow } from './s
 /** Projects larger than this (rows × features) get quick passes between full passes. */
 export const QUICK_PASS_CELLS = 4_000_000;
 /** Samples above which `solver: auto` picks dual coordinate descent for the linear kernel. */
-export const AUTO_DCD_ROWS = 5000;
+export const AUTO_DCD_ROWS = 1000;
 
 export type FitPass = 'full' | 'quick';
 

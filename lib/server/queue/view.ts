@@ -1,0 +1,364 @@
+/**
+ * What the queue screens read: the item a reviewer works on, the split items and pending changes a
+ * lead sees, recent decisions, and the project's queue and fit status. Team-scoped like every
+ * data-access function (the scope is checked against the project first).
+ *
+ * Blindness: `itemForReviewer` never includes votes or the item's state (whether someone voted
+ * before is not shown either). Votes become visible only on split items, to leads who decide them,
+ * and as outcomes once an item is closed.
+ */
+import { readProjectSettings, STANDING_FLAGS, type StandingFlag } from '../../domain-queue';
+import { roleAtLeast } from '../../domain';
+import type { TeamScope } from '../authz/scope';
+import { forbidden, notFound } from '../authz/errors';
+import type { Db } from '../db';
+import { featureMatrix } from '../fits/data';
+import { unpackDetail } from '../fits/standings-store';
+import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
+import { QUEUE_MESSAGES } from './messages';
+import { nearestNeighbours, type Scaling } from './neighbours';
+import { describeStanding, type StandingWords } from './words';
+
+export interface StandingView extends StandingWords {
+  readonly fitId: string;
+  readonly fitRevision: number;
+  readonly flags: StandingFlag[];
+  readonly margin: number;
+  readonly distance: number;
+  readonly suspicion: number;
+  readonly nearBand: number;
+}
+
+export interface NeighbourView {
+  readonly sampleId: string;
+  readonly externalId: string;
+  readonly label: string;
+  readonly distance: number;
+  readonly text: string | null;
+}
+
+export interface SampleView {
+  readonly id: string;
+  readonly externalId: string;
+  readonly text: string | null;
+  readonly imageRef: string | null;
+  readonly metadata: [string, string][];
+  readonly currentLabel: string;
+  readonly labelRevision: number;
+}
+
+export interface ReviewItemView {
+  readonly itemId: string;
+  readonly round: number;
+  readonly reasons: string[];
+  readonly suspicion: number;
+  readonly leaseExpiresAt: string | null;
+  readonly sample: SampleView;
+  readonly classes: string[];
+  readonly standing: StandingView | null;
+  readonly neighbours: NeighbourView[];
+}
+
+const metricsCache = new Map<string, { classes: string[]; nearBand: number }>();
+
+async function fitFacts(db: Db, fitId: string, fallbackNearBand: number): Promise<{ classes: string[]; nearBand: number }> {
+  const hit = metricsCache.get(fitId);
+  if (hit) return hit;
+  const fit = await db.fit.findUnique({ where: { id: fitId }, select: { metrics: true } });
+  let classes: string[] = [];
+  let nearBand = fallbackNearBand;
+  try {
+    const m = JSON.parse(fit?.metrics ?? '{}') as { classes?: unknown; nearBand?: unknown };
+    if (Array.isArray(m.classes)) classes = m.classes.filter((c): c is string => typeof c === 'string');
+    if (typeof m.nearBand === 'number') nearBand = m.nearBand;
+  } catch {
+    classes = [];
+  }
+  const facts = { classes, nearBand };
+  if (metricsCache.size > 200) metricsCache.clear();
+  metricsCache.set(fitId, facts);
+  return facts;
+}
+
+function flagsOf(csv: string): StandingFlag[] {
+  return csv.split(',').filter((f): f is StandingFlag => (STANDING_FLAGS as readonly string[]).includes(f));
+}
+
+function metadataOf(json: string | null): [string, string][] {
+  if (!json) return [];
+  try {
+    const v: unknown = JSON.parse(json);
+    if (!v || typeof v !== 'object' || Array.isArray(v)) return [];
+    return Object.entries(v as Record<string, unknown>)
+      .slice(0, 30)
+      .map(([k, x]) => [k, typeof x === 'string' ? x : JSON.stringify(x)] as [string, string]);
+  } catch {
+    return [];
+  }
+}
+
+/** The newest stored standing of a sample among done fits, in words. */
+export async function standingOf(db: Db, sampleId: string, label: string, fallbackNearBand: number): Promise<StandingView | null> {
+  const st = await db.standing.findFirst({
+    where: { sampleId, fit: { status: 'done' } },
+    orderBy: [{ fit: { revisionNumber: 'desc' } }, { fit: { createdAt: 'desc' } }],
+    select: {
+      fitId: true,
+      margin: true,
+      distance: true,
+      flags: true,
+      suspicion: true,
+      detail: true,
+      fit: { select: { revisionNumber: true } },
+    },
+  });
+  if (!st) return null;
+  const facts = await fitFacts(db, st.fitId, fallbackNearBand);
+  const detail = unpackDetail(st.detail);
+  const flags = flagsOf(st.flags);
+  if (!detail || facts.classes.length < 2) return null;
+  const words = describeStanding({
+    label,
+    classes: facts.classes,
+    decisions: detail.decision,
+    oofDecisions: detail.oofDecision,
+    flags,
+    nearBand: facts.nearBand,
+  });
+  return {
+    ...words,
+    fitId: st.fitId,
+    fitRevision: st.fit.revisionNumber,
+    flags,
+    margin: st.margin,
+    distance: st.distance,
+    suspicion: st.suspicion,
+    nearBand: facts.nearBand,
+  };
+}
+
+async function neighboursOf(db: Db, projectId: string, sampleId: string, scaling: Scaling): Promise<NeighbourView[]> {
+  const m = await featureMatrix(db, projectId);
+  const row = m.rowOf.get(sampleId);
+  if (row === undefined) return [];
+  const near = nearestNeighbours(m, scaling, row, 5);
+  const ids = near.map((x) => m.sampleIds[x.row]);
+  const samples = await db.sample.findMany({ where: { id: { in: ids } }, select: { id: true, externalId: true, currentLabel: true, text: true } });
+  const byId = new Map(samples.map((s) => [s.id, s]));
+  return near.flatMap((x) => {
+    const s = byId.get(m.sampleIds[x.row]);
+    if (!s) return [];
+    return [{ sampleId: s.id, externalId: s.externalId, label: s.currentLabel, distance: x.distance, text: s.text ? s.text.slice(0, 160) : null }];
+  });
+}
+
+async function sampleView(db: Db, projectId: string, sampleId: string): Promise<SampleView> {
+  const s = await db.sample.findFirst({
+    where: { id: sampleId, projectId },
+    select: { id: true, externalId: true, text: true, imageRef: true, metadata: true, currentLabel: true, labelRevision: true },
+  });
+  if (!s) throw notFound();
+  return { ...s, metadata: metadataOf(s.metadata) };
+}
+
+async function classNames(db: Db, projectId: string): Promise<string[]> {
+  return (await db.projectClass.findMany({ where: { projectId }, orderBy: { position: 'asc' }, select: { name: true } })).map((c) => c.name);
+}
+
+/** The item the caller holds the lease on, as the reviewer screen shows it (no votes). */
+export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
+  const { db } = deps;
+  const project = await projectInScope(db, scope, projectId);
+  const settings = readProjectSettings(project.settings);
+  const item = await db.queueItem.findFirst({
+    where: { id: itemId, projectId: project.id },
+    select: { id: true, round: true, reasons: true, suspicion: true, leaseUserId: true, leaseExpiresAt: true, sampleId: true },
+  });
+  if (!item) throw notFound();
+  const sample = await sampleView(db, project.id, item.sampleId);
+  const [classes, standing, neighbours] = await Promise.all([
+    classNames(db, project.id),
+    standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand),
+    neighboursOf(db, project.id, item.sampleId, settings.scale),
+  ]);
+  return {
+    itemId: item.id,
+    round: item.round,
+    reasons: item.reasons ? item.reasons.split(',') : [],
+    suspicion: item.suspicion,
+    leaseExpiresAt: item.leaseUserId === actor.userId && item.leaseExpiresAt ? item.leaseExpiresAt.toISOString() : null,
+    sample,
+    classes,
+    standing,
+    neighbours,
+  };
+}
+
+export interface SplitItemView {
+  readonly itemId: string;
+  readonly sample: SampleView;
+  readonly standing: StandingView | null;
+  readonly votes: { userId: string; name: string; decision: string; label: string | null; note: string | null }[];
+  /** true when the caller cast one of the votes (then another lead must decide) */
+  readonly callerVoted: boolean;
+}
+
+/** Split items with their two votes — for leads only. */
+export async function splitItems(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, limit = 20): Promise<SplitItemView[]> {
+  if (!roleAtLeast(actor.role, 'lead')) throw forbidden(QUEUE_MESSAGES.leadOnlyDecide);
+  const { db } = deps;
+  const project = await projectInScope(db, scope, projectId);
+  const settings = readProjectSettings(project.settings);
+  const items = await db.queueItem.findMany({
+    where: { projectId: project.id, state: 'split' },
+    orderBy: [{ suspicion: 'desc' }, { id: 'asc' }],
+    take: limit,
+    select: {
+      id: true,
+      sampleId: true,
+      votes: { orderBy: { createdAt: 'asc' }, select: { userId: true, decision: true, label: true, note: true, user: { select: { name: true } } } },
+    },
+  });
+  const out: SplitItemView[] = [];
+  for (const it of items) {
+    const sample = await sampleView(db, project.id, it.sampleId);
+    out.push({
+      itemId: it.id,
+      sample,
+      standing: await standingOf(db, it.sampleId, sample.currentLabel, settings.nearBand),
+      votes: it.votes.map((v) => ({ userId: v.userId, name: v.user.name, decision: v.decision, label: v.label, note: v.note })),
+      callerVoted: it.votes.some((v) => v.userId === actor.userId),
+    });
+  }
+  return out;
+}
+
+export interface DecisionView {
+  readonly itemId: string;
+  readonly externalId: string;
+  readonly outcome: string;
+  readonly finalLabel: string | null;
+  readonly currentLabel: string;
+  readonly appliedRevision: number | null;
+  readonly closedAt: string | null;
+  readonly byLead: boolean;
+  readonly standing: { headline: string; fitRevision: number } | null;
+}
+
+/** The most recently closed items with the sample's newest standing (after a refit: its new one). */
+export async function recentDecisions(deps: QueueDeps, scope: TeamScope, projectId: string, limit = 8): Promise<DecisionView[]> {
+  const { db } = deps;
+  const project = await projectInScope(db, scope, projectId);
+  const settings = readProjectSettings(project.settings);
+  const items = await db.queueItem.findMany({
+    where: { projectId: project.id, state: 'closed' },
+    orderBy: [{ closedAt: 'desc' }, { id: 'desc' }],
+    take: limit,
+    select: {
+      id: true,
+      outcome: true,
+      finalLabel: true,
+      appliedRevision: true,
+      closedAt: true,
+      tiebreakById: true,
+      sampleId: true,
+      sample: { select: { externalId: true, currentLabel: true } },
+    },
+  });
+  const out: DecisionView[] = [];
+  for (const it of items) {
+    const st = await standingOf(db, it.sampleId, it.sample.currentLabel, settings.nearBand);
+    out.push({
+      itemId: it.id,
+      externalId: it.sample.externalId,
+      outcome: it.outcome ?? 'kept',
+      finalLabel: it.finalLabel,
+      currentLabel: it.sample.currentLabel,
+      appliedRevision: it.appliedRevision,
+      closedAt: it.closedAt ? it.closedAt.toISOString() : null,
+      byLead: it.tiebreakById !== null,
+      standing: st ? { headline: st.headline, fitRevision: st.fitRevision } : null,
+    });
+  }
+  return out;
+}
+
+export interface FitStatusView {
+  readonly id: string;
+  readonly status: string;
+  readonly revisionNumber: number;
+  readonly progress: number;
+  readonly pass: string | null;
+  readonly error: string | null;
+  readonly finishedAt: string | null;
+}
+
+export interface QueueStatusView {
+  readonly currentRevision: number;
+  /** the fit being computed (running, else queued), if any */
+  readonly working: FitStatusView | null;
+  /** the newest completed fit */
+  readonly current: FitStatusView | null;
+  readonly counts: { open: number; oneVote: number; split: number; closed: number; kept: number; relabelled: number; pending: number };
+  readonly reviewing: { userId: string; name: string }[];
+  readonly applyEvery: number;
+  readonly generatedAt: string;
+}
+
+function fitView(f: { id: string; status: string; revisionNumber: number; progress: number; metrics: string | null; error: string | null; finishedAt: Date | null } | null): FitStatusView | null {
+  if (!f) return null;
+  let pass: string | null = null;
+  try {
+    const m = JSON.parse(f.metrics ?? '{}') as { pass?: unknown };
+    pass = typeof m.pass === 'string' ? m.pass : null;
+  } catch {
+    pass = null;
+  }
+  return { id: f.id, status: f.status, revisionNumber: f.revisionNumber, progress: f.progress, pass, error: f.error, finishedAt: f.finishedAt ? f.finishedAt.toISOString() : null };
+}
+
+/** Fit status, queue progress by state and who holds a lease now. */
+export async function queueStatus(deps: QueueDeps, scope: TeamScope, projectId: string): Promise<QueueStatusView> {
+  const { db } = deps;
+  const project = await projectInScope(db, scope, projectId);
+  const now = nowOf(deps);
+  const fitSelect = { id: true, status: true, revisionNumber: true, progress: true, metrics: true, error: true, finishedAt: true } as const;
+  const [working, current, groups, pending, leases] = await Promise.all([
+    db.fit.findFirst({
+      where: { projectId: project.id, status: { in: ['running', 'queued'] } },
+      orderBy: [{ status: 'asc' }, { revisionNumber: 'desc' }, { createdAt: 'desc' }],
+      select: fitSelect,
+    }),
+    db.fit.findFirst({ where: { projectId: project.id, status: 'done' }, orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }], select: fitSelect }),
+    db.queueItem.groupBy({ by: ['state', 'outcome'], where: { projectId: project.id }, _count: { _all: true } }),
+    db.queueItem.count({ where: { projectId: project.id, state: 'closed', outcome: 'relabelled', appliedRevision: null } }),
+    db.queueItem.findMany({
+      where: { projectId: project.id, leaseExpiresAt: { gt: now }, leaseUserId: { not: null } },
+      select: { leaseUser: { select: { id: true, name: true } } },
+    }),
+  ]);
+  const counts = { open: 0, oneVote: 0, split: 0, closed: 0, kept: 0, relabelled: 0, pending };
+  for (const g of groups) {
+    const c = g._count._all;
+    if (g.state === 'open') counts.open += c;
+    else if (g.state === 'one-vote') counts.oneVote += c;
+    else if (g.state === 'split') counts.split += c;
+    else if (g.state === 'closed') {
+      counts.closed += c;
+      if (g.outcome === 'relabelled') counts.relabelled += c;
+      else counts.kept += c;
+    }
+  }
+  const reviewers = new Map<string, string>();
+  for (const l of leases) if (l.leaseUser) reviewers.set(l.leaseUser.id, l.leaseUser.name);
+  return {
+    currentRevision: project.currentRevision,
+    // 'queued' sorts after 'running' (status asc), so a running fit is shown first.
+    working: fitView(working),
+    current: fitView(current),
+    counts,
+    reviewing: [...reviewers].map(([userId, name]) => ({ userId, name })).sort((a, b) => a.name.localeCompare(b.name)),
+    applyEvery: readProjectSettings(project.settings).applyEvery,
+    generatedAt: now.toISOString(),
+  };
+}
