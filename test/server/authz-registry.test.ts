@@ -76,6 +76,18 @@ const ACTION_PROBES: Record<string, ActionProbe> = {
   removeMember: { input: (f) => ({ membershipId: f.membershipReviewerA }), allowed: 'leadA' },
   createPipelineToken: { input: (f) => ({ projectId: f.projectA, name: 'nightly embeddings' }), allowed: 'leadA' },
   revokePipelineToken: { input: (f) => ({ tokenId: f.tokenA.id }), allowed: 'leadA' },
+  // Review queue (the fixture's project has no queue items: "next" answers { item: null }; votes and
+  // decisions on a made-up item get through the wrapper and are then refused as not found, so
+  // their allowed-caller runs are covered by test/server/queue-actions.test.ts instead).
+  claimNextItem: { input: (f) => ({ projectId: f.projectA }), allowed: 'reviewerA' },
+  castVote: { input: (f) => ({ projectId: f.projectA, itemId: 'probe-item', decision: 'keep' }), allowed: 'none' },
+  withdrawVote: { input: (f) => ({ projectId: f.projectA, voteId: 'probe-vote' }), allowed: 'none' },
+  decideSplit: { input: (f) => ({ projectId: f.projectA, itemId: 'probe-item', decision: 'relabel', label: 'right' }), allowed: 'none' },
+  applyChanges: { input: (f) => ({ projectId: f.projectA }), allowed: 'leadA' },
+  updateProjectSettings: {
+    input: (f) => ({ projectId: f.projectA, settings: { kernel: 'linear', C: 2, scale: 'standard', queueCap: 50, applyEvery: 5 } }),
+    allowed: 'leadA',
+  },
 };
 
 type RouteProbe = {
@@ -106,6 +118,7 @@ const ROUTE_PROBES: Record<string, RouteProbe> = {
   apiSamples: { method: 'POST', params: (f) => ({ projectId: f.projectA }), rawBody: CSV_BODY },
   apiLabels: { method: 'GET', params: (f) => ({ projectId: f.projectA }) },
   apiRevisions: { method: 'GET', params: (f) => ({ projectId: f.projectA }) },
+  queueStatus: { method: 'GET', params: (f) => ({ projectId: f.projectA }) },
 };
 /** Route entries served by next-auth itself: not callable outside Next's request scope. */
 const NEXT_AUTH_ROUTES = new Set(['nextAuth']);
