@@ -509,9 +509,25 @@ async function finishWithStatus(db: Db, fitId: string, status: 'failed' | 'cance
 /** Runs at most one queued fit of the project. Returns null when there was nothing to run. */
 export async function processProject(db: Db, projectId: string, options: ProcessOptions): Promise<ProcessOutcome | null> {
   const clock = options.clock ?? systemClock;
-  const log = options.log ?? (() => {});
   const claimed = await claim(db, projectId, clock());
   if (!claimed) return null;
+  return runClaimedFit(db, projectId, claimed, options);
+}
+
+export interface ClaimedFit {
+  readonly id: string;
+  readonly revisionNumber: number;
+  readonly settings: string;
+  readonly createdAt: Date;
+}
+
+/**
+ * Computes and completes a fit that is already `running` (claimed by `processProject`, or by another
+ * worker's own claim). Exposed so that tests can reproduce two workers finishing out of order.
+ */
+export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedFit, options: ProcessOptions): Promise<ProcessOutcome> {
+  const clock = options.clock ?? systemClock;
+  const log = options.log ?? (() => {});
   const snapshot = readSnapshot(claimed.settings);
   options.onClaim?.({ id: claimed.id, revisionNumber: claimed.revisionNumber, followUp: snapshot.followUp });
   const started = performance.now();

@@ -1,0 +1,260 @@
+// The refit service: coalescing, one running fit per project, stale-result protection, warm
+// starts, the queue rebuild after a fit, the worker-thread engine and the in-process job queue.
+// Rules under test are the ones stated in lib/server/fits/jobs.ts and lib/server/queue/build.ts.
+import { afterAll, beforeAll, beforeEach, describe, expect, it } from 'vitest';
+import type { Db } from '@/lib/server/db';
+import { enqueueFitTx } from '@/lib/server/fits/enqueue';
+import { inlineEngine, workerEngine, type EngineRunner } from '@/lib/server/fits/engine';
+import { InProcessFitQueue } from '@/lib/server/fits/in-process';
+import { setFitJobQueue } from '@/lib/server/fits/jobs';
+import { processProject, resetFitMemory, runClaimedFit, type ProcessOutcome } from '@/lib/server/fits/run-fit';
+import { decodeModel } from '@/lib/server/fits/model-codec';
+import { castVote } from '@/lib/server/queue/vote';
+import { createTestDatabase, type TestDatabase } from './db-harness';
+import { createQueueFixture, type QueueFixture } from './queue-fixtures';
+
+let t: TestDatabase;
+let db: Db;
+
+beforeAll(async () => {
+  t = await createTestDatabase();
+  await t.migrate();
+  db = t.client();
+});
+afterAll(async () => {
+  setFitJobQueue(null);
+  await t.drop();
+});
+beforeEach(() => resetFitMemory());
+
+/** Deterministic jitter in [−0.5, 0.5) (a hash of i, not a PRNG stream: every sample is independent). */
+function jitter(i: number, salt: number): number {
+  const x = Math.sin(i * 12.9898 + salt * 78.233) * 43758.5453;
+  return x - Math.floor(x) - 0.5;
+}
+
+/**
+ * 80 samples, two classes along x: "a" around x = −1.5, "b" around x = +1.5 (y is noise), and
+ * three planted flips deep inside the other class (ids s0005, s0017, s0042).
+ */
+const FLIPPED = new Set([5, 17, 42]);
+async function twoClassProject(settings: Record<string, unknown> = {}): Promise<QueueFixture> {
+  return createQueueFixture(db, {
+    classes: ['a', 'b'],
+    samples: 80,
+    settings: { applyEvery: 1, queueCap: 20, pivotCap: 5, folds: 4, scale: 'standard', ...settings },
+    features: (i) => [(i % 2 === 0 ? -1.5 : 1.5) + jitter(i, 1), jitter(i, 2) * 2],
+    labels: (i) => ((i % 2 === 0) !== FLIPPED.has(i) ? 'a' : 'b'),
+  });
+}
+
+async function addRevision(f: QueueFixture, number: number): Promise<{ id: string; number: number }> {
+  const r = await db.revision.create({ data: { projectId: f.projectId, number, kind: 'update' }, select: { id: true, number: true } });
+  await db.project.update({ where: { id: f.projectId }, data: { currentRevision: number } });
+  return r;
+}
+
+async function queueFit(f: QueueFixture, revision: { id: string; number: number }): Promise<string> {
+  const project = await db.project.findUniqueOrThrow({ where: { id: f.projectId } });
+  return enqueueFitTx(db, project, revision);
+}
+
+async function revision0(f: QueueFixture) {
+  return db.revision.findUniqueOrThrow({ where: { projectId_number: { projectId: f.projectId, number: 0 } }, select: { id: true, number: true } });
+}
+
+/** An engine whose jobs wait until `open()` is called. */
+function gatedEngine(): EngineRunner & { open: () => void; entered: Promise<void> } {
+  let open: () => void = () => {};
+  let entered: () => void = () => {};
+  const gate = new Promise<void>((r) => (open = r));
+  const enteredP = new Promise<void>((r) => (entered = r));
+  return {
+    name: 'gated',
+    open,
+    entered: enteredP,
+    audit: async (data, settings, onProgress, signal) => {
+      entered();
+      await gate;
+      return inlineEngine.audit(data, settings, onProgress, signal);
+    },
+    fit: async (data, settings, onProgress, signal) => {
+      entered();
+      await gate;
+      return inlineEngine.fit(data, settings, onProgress, signal);
+    },
+    select: inlineEngine.select,
+  };
+}
+
+describe('a fit', () => {
+  it('stores standings for every sample, metrics and a model, and builds the queue from the flagged samples', async () => {
+    const f = await twoClassProject();
+    await queueFit(f, await revision0(f));
+    const out = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(out?.status).toBe('done');
+    const fit = await db.fit.findUniqueOrThrow({ where: { id: out?.fitId } });
+    expect([fit.status, fit.progress, fit.formulation]).toEqual(['done', 1, 'smo-unregularised-bias']);
+    expect(await db.standing.count({ where: { fitId: fit.id } })).toBe(80);
+    const metrics = JSON.parse(fit.metrics ?? '{}') as { classes: string[]; pass: string; samples: number; boundaries: unknown[] };
+    expect([metrics.classes, metrics.pass, metrics.samples, metrics.boundaries.length]).toEqual([['a', 'b'], 'full', 80, 1]);
+    const model = decodeModel(fit.model as Uint8Array);
+    expect(model.header.sampleIds).toHaveLength(80);
+    expect(model.boundaries[0].alpha).toHaveLength(80);
+    // The three planted flips sit deep on the wrong side (textbook: a point of class b among the
+    // a's has y·f(x) < 0 for any reasonable separator of the two clusters) — they head the queue.
+    const items = await db.queueItem.findMany({ where: { projectId: f.projectId }, orderBy: { suspicion: 'desc' }, include: { sample: true } });
+    expect(items.length).toBeGreaterThanOrEqual(3);
+    expect(items.length).toBeLessThanOrEqual(20);
+    expect(new Set(items.slice(0, 3).map((i) => i.sample.externalId))).toEqual(new Set(['s0005', 's0017', 's0042']));
+    for (const it of items) {
+      expect(it.fitId).toBe(fit.id);
+      expect(it.reasons.length).toBeGreaterThan(0);
+    }
+    const flipped = await db.standing.findMany({ where: { fitId: fit.id, sample: { externalId: { in: ['s0005', 's0017', 's0042'] } } } });
+    for (const s of flipped) {
+      expect(s.flags.split(',')).toContain('wrong-side');
+      expect(s.margin).toBeLessThan(0);
+      expect(s.oofMargin).not.toBeNull();
+    }
+  });
+
+  it('coalesces: of queued fits for revisions 1, 2 and 3 only revision 3 runs', async () => {
+    const f = await twoClassProject();
+    const ids = [];
+    for (const n of [1, 2, 3]) ids.push(await queueFit(f, await addRevision(f, n)));
+    const out = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(out?.revisionNumber).toBe(3);
+    expect(out?.status).toBe('done');
+    const fits = await db.fit.findMany({ where: { id: { in: ids } }, orderBy: { revisionNumber: 'asc' } });
+    expect(fits.map((x) => x.status)).toEqual(['superseded', 'superseded', 'done']);
+    expect(fits[0].error).toBe('coalesced into the fit of revision 3');
+    expect(await processProject(db, f.projectId, { engine: inlineEngine })).toBeNull();
+  });
+
+  it('runs one fit per project at a time', async () => {
+    const f = await twoClassProject();
+    const first = await queueFit(f, await revision0(f));
+    const engine = gatedEngine();
+    const running = processProject(db, f.projectId, { engine });
+    await engine.entered;
+    const second = await queueFit(f, await addRevision(f, 1));
+    // While revision 0 runs, nothing else starts for this project.
+    expect(await processProject(db, f.projectId, { engine: inlineEngine })).toBeNull();
+    expect((await db.fit.findUniqueOrThrow({ where: { id: second } })).status).toBe('queued');
+    engine.open();
+    expect((await running)?.fitId).toBe(first);
+    expect((await processProject(db, f.projectId, { engine: inlineEngine }))?.fitId).toBe(second);
+  });
+
+  it('a fit of revision 5 finishing after the fit of revision 6 is marked superseded and overwrites nothing', async () => {
+    const f = await twoClassProject();
+    for (const n of [1, 2, 3, 4]) await addRevision(f, n);
+    const r5 = await addRevision(f, 5);
+    const fit5 = await queueFit(f, r5);
+    // Worker one claims revision 5 and is slow.
+    const slow = gatedEngine();
+    const claimed5 = await db.fit.update({ where: { id: fit5 }, data: { status: 'running' }, select: { id: true, revisionNumber: true, settings: true, createdAt: true } });
+    const run5 = runClaimedFit(db, f.projectId, claimed5, { engine: slow });
+    await slow.entered;
+    // Meanwhile revision 6 arrives and a second worker fits it to completion.
+    const r6 = await addRevision(f, 6);
+    const fit6 = await queueFit(f, r6);
+    const claimed6 = await db.fit.update({ where: { id: fit6 }, data: { status: 'running' }, select: { id: true, revisionNumber: true, settings: true, createdAt: true } });
+    const out6 = await runClaimedFit(db, f.projectId, claimed6, { engine: inlineEngine });
+    expect(out6.status).toBe('done');
+    const itemsAfter6 = await db.queueItem.findMany({ where: { projectId: f.projectId }, select: { id: true, fitId: true, suspicion: true } });
+    // Now revision 5's fit finishes.
+    slow.open();
+    const out5 = await run5;
+    expect(out5.status).toBe('superseded');
+    const row5 = await db.fit.findUniqueOrThrow({ where: { id: fit5 } });
+    expect([row5.status, row5.error, row5.metrics, row5.model]).toEqual(['superseded', 'a fit of revision 6 completed first', null, null]);
+    expect(await db.standing.count({ where: { fitId: fit5 } })).toBe(0);
+    // The queue still comes from revision 6's fit, untouched.
+    const itemsAfter5 = await db.queueItem.findMany({ where: { projectId: f.projectId }, select: { id: true, fitId: true, suspicion: true } });
+    expect(itemsAfter5).toEqual(itemsAfter6);
+    expect(new Set(itemsAfter5.map((i) => i.fitId))).toEqual(new Set([fit6]));
+  });
+
+  it('after agreed relabels are applied, the refit is warm-started, the relabelled sample moves, and closed items stay closed', async () => {
+    const f = await twoClassProject({ applyEvery: 1 });
+    await queueFit(f, await revision0(f));
+    const first = await processProject(db, f.projectId, { engine: inlineEngine });
+    const s17 = await db.sample.findFirstOrThrow({ where: { projectId: f.projectId, externalId: 's0017' } });
+    const item = await db.queueItem.findFirstOrThrow({ where: { sampleId: s17.id, state: 'open' } });
+    const before = await db.standing.findFirstOrThrow({ where: { fitId: first?.fitId, sampleId: s17.id } });
+    // s0017: odd index → feature cluster of "b", planted label "a"
+    expect(s17.currentLabel).toBe('a');
+    const [a, b] = f.reviewers;
+    await castVote({ db }, f.scope, a, { projectId: f.projectId, itemId: item.id, decision: 'relabel', label: 'b' });
+    const vote = await castVote({ db }, f.scope, b, { projectId: f.projectId, itemId: item.id, decision: 'relabel', label: 'b' });
+    expect(vote.applied?.revisionNumber).toBe(1);
+    const second = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect([second?.status, second?.revisionNumber]).toEqual(['done', 1]);
+    const fit = await db.fit.findUniqueOrThrow({ where: { id: second?.fitId } });
+    expect(fit.warmFromFitId).toBe(first?.fitId);
+    expect((JSON.parse(fit.metrics ?? '{}') as { warmStarted: boolean }).warmStarted).toBe(true);
+    const after = await db.standing.findFirstOrThrow({ where: { fitId: fit.id, sampleId: s17.id } });
+    expect(before.margin).toBeLessThan(0);
+    expect(after.margin).toBeGreaterThan(0); // now labelled b, inside the b cluster: right side
+    expect(after.flags.split(',')).not.toContain('wrong-side');
+    const items17 = await db.queueItem.findMany({ where: { sampleId: s17.id } });
+    expect(items17.map((i) => [i.state, i.outcome, i.appliedRevision])).toEqual([['closed', 'relabelled', 1]]);
+  });
+
+  it('items with votes survive a rebuild even when no longer flagged; vote-less items that drop out are removed', async () => {
+    const f = await twoClassProject({ queueCap: 20 });
+    await queueFit(f, await revision0(f));
+    await processProject(db, f.projectId, { engine: inlineEngine });
+    // A comfortable sample (s0010: class a, in the a cluster) gets an item by hand, with one vote,
+    // and another one without votes.
+    const s10 = await db.sample.findFirstOrThrow({ where: { projectId: f.projectId, externalId: 's0010' } });
+    const s12 = await db.sample.findFirstOrThrow({ where: { projectId: f.projectId, externalId: 's0012' } });
+    const withVote = await db.queueItem.create({ data: { projectId: f.projectId, sampleId: s10.id, revisionNumber: 0, suspicion: 0.01 } });
+    const voteless = await db.queueItem.create({ data: { projectId: f.projectId, sampleId: s12.id, revisionNumber: 0, suspicion: 0.01 } });
+    await castVote({ db }, f.scope, f.reviewers[0], { projectId: f.projectId, itemId: withVote.id, decision: 'keep' });
+    await queueFit(f, await addRevision(f, 1));
+    const out = await processProject(db, f.projectId, { engine: inlineEngine });
+    const kept = await db.queueItem.findUnique({ where: { id: withVote.id } });
+    expect(kept?.state).toBe('one-vote');
+    expect(kept?.fitId).toBe(out?.fitId); // re-scored by the new fit
+    expect(await db.queueItem.findUnique({ where: { id: voteless.id } })).toBeNull();
+  });
+
+  it('respects the queue cap', async () => {
+    const f = await twoClassProject({ queueCap: 2 });
+    await queueFit(f, await revision0(f));
+    await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(await db.queueItem.count({ where: { projectId: f.projectId } })).toBe(2);
+  });
+
+  it('fails cleanly with one class only', async () => {
+    const f = await createQueueFixture(db, { classes: ['only'], samples: 10 });
+    await queueFit(f, await revision0(f));
+    const out = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(out?.status).toBe('failed');
+    expect((await db.fit.findUniqueOrThrow({ where: { id: out?.fitId } })).error).toBe('A fit needs samples of at least two classes.');
+  });
+});
+
+describe('the in-process job queue', () => {
+  it('runs queued fits in a worker thread, writes progress, and coalesces a burst', async () => {
+    const f = await twoClassProject();
+    const outcomes: ProcessOutcome[] = [];
+    const queue = new InProcessFitQueue(db, { engine: workerEngine(), pollMs: 60_000, onOutcome: (_p, o) => outcomes.push(o) });
+    setFitJobQueue(queue);
+    // A burst of three revisions before the worker starts: one fit runs.
+    const ids = [];
+    for (const n of [1, 2, 3]) ids.push(await queueFit(f, await addRevision(f, n)));
+    await queue.start();
+    await queue.idle(f.projectId);
+    expect(outcomes.map((o) => [o.revisionNumber, o.status])).toEqual([[3, 'done']]);
+    const fits = await db.fit.findMany({ where: { id: { in: ids } }, orderBy: { revisionNumber: 'asc' } });
+    expect(fits.map((x) => x.status)).toEqual(['superseded', 'superseded', 'done']);
+    expect(fits[2].progress).toBe(1);
+    expect(await db.queueItem.count({ where: { projectId: f.projectId, fitId: fits[2].id } })).toBeGreaterThan(0);
+    await queue.stop();
+    setFitJobQueue(null);
+  });
+});
