@@ -201,6 +201,24 @@ function json(status: number, body: unknown): Response {
   });
 }
 
+/**
+ * Defence in depth against cross-site requests riding on the session cookie (which is already
+ * SameSite=Lax): a state-changing request whose Origin names another host is refused. Requests
+ * without an Origin header (scripts, curl) are not browsers' cross-site requests and pass.
+ */
+export function isCrossSite(req: Request): boolean {
+  if (req.method === 'GET' || req.method === 'HEAD' || req.method === 'OPTIONS') return false;
+  const origin = req.headers.get('origin');
+  if (!origin) return false;
+  const host = req.headers.get('x-forwarded-host') ?? req.headers.get('host');
+  if (!host) return false;
+  try {
+    return new URL(origin).host !== host.split(',')[0].trim();
+  } catch {
+    return true;
+  }
+}
+
 async function readJsonBody(req: Request, limit: number): Promise<{ ok: true; value: unknown } | { ok: false; failure: ActionFailure }> {
   const declared = Number(req.headers.get('content-length') ?? '0');
   if (declared > limit) return { ok: false, failure: failure(413, `The request body is too large (at most ${limit} bytes).`) };
@@ -241,6 +259,7 @@ export function defineRoute<S extends z.ZodType, T>(
       const client = db();
       const user = await authenticate(ctx, client);
       if (!user) return failure(401, MESSAGES.unauthenticated);
+      if (isCrossSite(req)) return failure(403, MESSAGES.crossSite);
       const params = (await context.params) ?? {};
       let raw: unknown;
       if (req.method === 'GET' || req.method === 'DELETE' || req.method === 'HEAD' || spec.body === 'stream') {

@@ -22,6 +22,7 @@ export const MESSAGES = {
   forbidden: (needed: string) => `Only a team member with the ${needed} role can do this.`,
   fault: 'Something went wrong on our side and the request was not completed. Try again in a moment.',
   conflict: 'That conflicts with a change made at the same time. Reload and try again.',
+  crossSite: 'Requests from other sites are not accepted. Use Borderline directly.',
 } as const;
 
 export const badRequest = (message: string, fields?: Record<string, string>) => new ActionError(400, message, fields);
