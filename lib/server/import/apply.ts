@@ -93,8 +93,8 @@ function insertSql(dialect: Dialect): string {
       FROM json_each(?)`;
   }
   return `INSERT INTO "Sample" (${cols})
-    SELECT r->>0, $1, r->>1, decode(r->>2, 'hex'), r->>3, r->>4, r->>5, r->>6, r->>6, $2::int, $3::int, $4::timestamp(3), $5::timestamp(3)
-    FROM json_array_elements($6::json) AS r`;
+    SELECT r->>0, $1, r->>1, decode(r->>2, 'base64'), r->>3, r->>4, r->>5, r->>6, r->>6, $2::int, $3::int, $4::timestamp(3), $5::timestamp(3)
+    FROM jsonb_array_elements($6::jsonb) AS r`;
 }
 
 /** DateTime as the SQL layer stores it (Prisma's own text form on SQLite; UTC on PostgreSQL). */
@@ -109,17 +109,58 @@ function sameBytes(a: Uint8Array, b: Uint8Array): boolean {
   return true;
 }
 
-async function insertRows(tx: DbTx, dialect: Dialect, sql: string, projectId: string, revision: number, stamp: string, rows: StagedRow[]): Promise<void> {
-  const payload = JSON.stringify(
-    rows.map((r) => [newRowId(), r.id, Buffer.from(r.features.buffer, r.features.byteOffset, r.features.byteLength).toString('hex'), r.text, r.image, r.metadata, r.label]),
+/**
+ * The rows of one INSERT as a JSON array of arrays [id, externalId, features, text, image,
+ * metadata, label]; features hex-encoded for SQLite (unhex) and base64 for PostgreSQL (decode).
+ */
+function insertPayload(dialect: Dialect, rows: StagedRow[]): string {
+  const encoding = dialect === 'sqlite' ? 'hex' : 'base64';
+  return JSON.stringify(
+    rows.map((r) => [
+      newRowId(),
+      r.id,
+      Buffer.from(r.features.buffer, r.features.byteOffset, r.features.byteLength).toString(encoding),
+      r.text,
+      r.image,
+      r.metadata,
+      r.label,
+    ]),
   );
-  await tx.$executeRawUnsafe(sql, projectId, revision, revision, stamp, stamp, payload);
+}
+
+/**
+ * Inserts batches one statement at a time on the transaction's connection, preparing the next
+ * batch's payload while the database works on the previous one.
+ */
+class RowInserter {
+  private pending: Promise<unknown> | null = null;
+  constructor(
+    private readonly tx: DbTx,
+    private readonly dialect: Dialect,
+    private readonly projectId: string,
+    private readonly revision: number,
+    private readonly stamp: string,
+  ) {}
+
+  async add(rows: StagedRow[]): Promise<void> {
+    const payload = insertPayload(this.dialect, rows);
+    await this.flush();
+    const p = this.tx.$executeRawUnsafe(insertSql(this.dialect), this.projectId, this.revision, this.revision, this.stamp, this.stamp, payload);
+    // Keep a rejection from surfacing as unhandled before flush() awaits it.
+    p.catch(() => undefined);
+    this.pending = p;
+  }
+
+  async flush(): Promise<void> {
+    const p = this.pending;
+    this.pending = null;
+    if (p !== null) await p;
+  }
 }
 
 export async function applyImport(client: Db, scope: TeamScope, input: ApplyInput, options: ApplyOptions = {}): Promise<ApplyResult> {
   const dialect = await dialectOf(client);
   const batchSize = options.batchSize ?? 1000;
-  const sql = insertSql(dialect);
   try {
     return await client.$transaction(
       async (tx) => {
@@ -166,6 +207,7 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
         }
 
         const stamp = sqlTimestamp(dialect, now);
+        const inserter = new RowInserter(tx, dialect, project.id, revisionNumber, stamp);
         let added = 0;
         let relabelled = 0;
         let updated = 0;
@@ -173,7 +215,7 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
         let written = 0;
         for await (const batch of readSpool(input.spoolPath, batchSize)) {
           if (input.mode === 'insert') {
-            await insertRows(tx, dialect, sql, project.id, revisionNumber, stamp, batch);
+            await inserter.add(batch);
             added += batch.length;
           } else {
             const existing = await tx.sample.findMany({
@@ -183,7 +225,8 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
             const byId = new Map(existing.map((s) => [s.externalId, s]));
             const fresh = batch.filter((r) => !byId.has(r.id));
             if (fresh.length > 0) {
-              await insertRows(tx, dialect, sql, project.id, revisionNumber, stamp, fresh);
+              await inserter.add(fresh);
+              await inserter.flush();
               added += fresh.length;
             }
             const changes: { sampleId: string; fromLabel: string; toLabel: string }[] = [];
@@ -231,6 +274,7 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
           written += batch.length;
           options.onWritten?.(written);
         }
+        await inserter.flush();
         if (added + relabelled + updated === 0) throw new NothingChanged(unchanged);
 
         const parts = [`${added} added`];

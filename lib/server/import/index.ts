@@ -161,32 +161,17 @@ async function peekBytes(source: AsyncIterable<Uint8Array>, want: number): Promi
   return { head, rest: replay() };
 }
 
-/** Reads text until the first non-blank character; returns it and a stream that replays all text. */
-async function peekText(texts: AsyncIterable<string>): Promise<{ first: string | null; rest: AsyncIterable<string> }> {
-  const iterator = texts[Symbol.asyncIterator]();
-  const seen: string[] = [];
-  let first: string | null = null;
-  let done = false;
-  while (first === null) {
-    const next = await iterator.next();
-    if (next.done) {
-      done = true;
-      break;
-    }
-    seen.push(next.value);
-    const m = /\S/.exec(next.value.replace(/^\uFEFF/, ''));
-    if (m) first = m[0];
+const PEEK_BYTES = 8192;
+
+/** The first character that is not a byte-order mark or white space (ASCII), or null. */
+function firstSignificantChar(head: Uint8Array): string | null {
+  let i = head[0] === 0xef && head[1] === 0xbb && head[2] === 0xbf ? 3 : 0;
+  for (; i < head.length; i++) {
+    const b = head[i];
+    if (b === 0x20 || b === 0x09 || b === 0x0a || b === 0x0d) continue;
+    return String.fromCharCode(b);
   }
-  async function* replay(): AsyncGenerator<string> {
-    for (const t of seen) yield t;
-    if (done) return;
-    for (;;) {
-      const next = await iterator.next();
-      if (next.done) return;
-      yield next.value;
-    }
-  }
-  return { first, rest: replay() };
+  return null;
 }
 
 export async function importSamples(
@@ -221,21 +206,23 @@ export async function importSamples(
   const spool = await SpoolWriter.create();
   try {
     try {
-      const { head, rest } = await peekBytes(input.source, 8192);
+      const { head, rest } = await peekBytes(input.source, PEEK_BYTES);
       const binary = head.length === 0 ? null : sniffBinary(head);
       if (head.length === 0) throw new FatalImportProblem(problemAt({ row: null, column: null, kind: 'csv' }, DETAIL.emptyFile));
       if (binary !== null) throw new FatalImportProblem({ row: null, column: null, message: binary });
-      const texts = decodeUtf8(rest, (total) => {
-        bytes = total;
-      });
-      const { first, rest: text } = await peekText(texts);
-      if (first === null) throw new FatalImportProblem(problemAt({ row: null, column: null, kind: 'csv' }, DETAIL.emptyFile));
+      const first = firstSignificantChar(head);
+      if (first === null && head.length < PEEK_BYTES) {
+        throw new FatalImportProblem(problemAt({ row: null, column: null, kind: 'csv' }, DETAIL.emptyFile));
+      }
       if (first === '[') throw new FatalImportProblem(problemAt({ row: null, column: null, kind: 'jsonl' }, DETAIL.jsonArrayFile));
       format = first === '{' ? 'jsonl' : 'csv';
+      const onBytes = (total: number) => {
+        bytes = total;
+      };
 
       if (format === 'csv') {
         let header = true;
-        for await (const record of readCsv(text, DATA_LIMITS.record)) {
+        for await (const record of readCsv(decodeUtf8(rest, onBytes), DATA_LIMITS.record)) {
           if (header) {
             validator.csvHeader(record);
             header = false;
@@ -247,7 +234,7 @@ export async function importSamples(
           if ((validator.rows & 255) === 0) report('reading', 0);
         }
       } else {
-        for await (const line of readLines(text, DATA_LIMITS.record)) {
+        for await (const line of readLines(decodeUtf8(rest, onBytes), DATA_LIMITS.record)) {
           const staged = validator.jsonRow(line);
           if (staged !== null && validator.ok) await spool.add(staged);
           if (validator.full) break;
@@ -257,7 +244,7 @@ export async function importSamples(
       if (!validator.full) validator.finish(format);
     } catch (error) {
       if (!(error instanceof FatalImportProblem)) throw error;
-      fatal.push(error.problem);
+      if (!validator.problems.includes(error.problem)) fatal.push(error.problem);
     }
     report('reading', 0, true);
 

@@ -94,7 +94,7 @@ export class RowValidator {
       const column = p.index === null ? null : describeColumn(p.index, names[p.index]);
       this.add(problemAt({ row: record.row, column, kind: 'csv' }, p.detail));
     }
-    if (analysis.featuresArrayIndex < 0) {
+    if (analysis.problems.length === 0 && analysis.featuresArrayIndex < 0) {
       const found = analysis.featureIndices.length;
       if (found > 0 && this.featureCount > 0 && found !== this.featureCount) {
         this.add(problemAt({ row: record.row, column: null, kind: 'csv' }, DETAIL.featureCountHeader(found, this.featureCount)));
@@ -270,7 +270,7 @@ export class RowValidator {
         flat.push(obj[key]);
         continue;
       }
-      if (!unknownReported && !(prefix !== '' && 'features' in obj)) {
+      if (!unknownReported) {
         this.add(problemAt(at(key), DETAIL.unknownField(key)));
         unknownReported = true;
       }
