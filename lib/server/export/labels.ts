@@ -1,6 +1,6 @@
 /**
  * Export of a project's current labels with their provenance, as CSV or JSON Lines, streamed
- * page by page (memory does not grow with the project).
+ * page by page in external-id order (memory does not grow with the project).
  *
  * Per sample: id, current label, original label, the revision where the current label was set,
  * the revision where the sample was added, and the votes that decided the label — the votes of
@@ -178,10 +178,15 @@ export async function* exportLabels(scope: TeamScope, projectId: string, options
     yield `${header.map((h) => csvTextCell(h)).join(',')}\r\n`;
   }
 
-  let cursor: string | undefined;
+  // Keyset pagination in external-id order (the database's own string order).
+  let after: string | undefined;
   for (;;) {
     const rows: SampleRow[] = await client.sample.findMany({
-      where: { projectId, ...(since === undefined ? {} : { labelRevision: { gt: since } }) },
+      where: {
+        projectId,
+        ...(since === undefined ? {} : { labelRevision: { gt: since } }),
+        ...(after === undefined ? {} : { externalId: { gt: after } }),
+      },
       select: {
         id: true,
         externalId: true,
@@ -194,9 +199,8 @@ export async function* exportLabels(scope: TeamScope, projectId: string, options
         metadata: full,
         features: full,
       },
-      orderBy: { id: 'asc' },
+      orderBy: { externalId: 'asc' },
       take: pageSize,
-      ...(cursor === undefined ? {} : { cursor: { id: cursor }, skip: 1 }),
     });
     if (rows.length === 0) break;
     const provenance = await provenanceOf(client, rows);
@@ -249,7 +253,7 @@ export async function* exportLabels(scope: TeamScope, projectId: string, options
     }
     yield chunk;
     if (rows.length < pageSize) break;
-    cursor = rows[rows.length - 1].id;
+    after = rows[rows.length - 1].externalId;
   }
 }
 
