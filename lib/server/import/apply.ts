@@ -186,7 +186,7 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
           data: {
             projectId: project.id,
             number: revisionNumber,
-            kind: input.mode === 'insert' ? 'import' : 'update',
+            kind: 'import',
             note: `Import of ${input.fileName}`,
             createdById: input.userId,
           },
@@ -281,7 +281,12 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
         if (input.mode === 'update') parts.push(`${relabelled} relabelled`, `${updated} updated`);
         await tx.revision.update({
           where: { id: revision.id },
-          data: { changeCount: added + relabelled, note: `Import of ${input.fileName}: ${parts.join(', ')}` },
+          // `update` when existing samples changed; a file that only adds samples is an `import`.
+          data: {
+            kind: relabelled + updated > 0 ? 'update' : 'import',
+            changeCount: added + relabelled,
+            note: `Import of ${input.fileName}: ${parts.join(', ')}`,
+          },
         });
         const moved = await tx.project.updateMany({
           where: { id: project.id, currentRevision: project.currentRevision },
