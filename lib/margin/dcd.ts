@@ -107,7 +107,18 @@ export interface DcdOptions extends SolverControl {
    * (‖w̃‖² ≠ Σ αᵢyᵢf(xᵢ)) and answered by rebuilding w̃ from α and solving on.
    */
   readonly warmStartFrom?: { readonly previous: BinarySolution; readonly previousY: Int8Array };
+  /**
+   * Precision of the rows used by the coordinate updates. 'input' uses X as given; 'float32' works on
+   * a Float32Array copy of a Float64Array X (half the memory traffic), while every read-only check,
+   * the decision values and the certificates still use X itself, with w̃ rebuilt from α in double
+   * precision before each check — so the returned α is verified on the problem as given. 'auto'
+   * (default) chooses 'float32' for a Float64Array X of at least `DCD_FLOAT32_MIN_ENTRIES` entries.
+   */
+  readonly rowPrecision?: 'auto' | 'input' | 'float32';
 }
+
+/** n·d from which rowPrecision 'auto' works on a float32 copy of a Float64Array X (32 MB of doubles). */
+export const DCD_FLOAT32_MIN_ENTRIES = 1 << 22;
 
 const EMPTY32 = new Float32Array(0);
 const EMPTY64 = new Float64Array(0);
@@ -258,6 +269,18 @@ class CompactRows {
     this.members = members;
     this.rows = count;
   }
+}
+
+/** Float32 copy of the first m entries; throws on values beyond the float32 range. */
+function float32Copy(x: Float64Array, m: number): Float32Array {
+  const out = new Float32Array(m);
+  for (let k = 0; k < m; k++) {
+    const v = x[k];
+    const f = Math.fround(v);
+    if (f - f !== 0 && v - v === 0) throw new EngineInputError(`feature value ${k} (${v}) exceeds the float32 range; use rowPrecision 'input'`);
+    out[k] = f;
+  }
+  return out;
 }
 
 /** Active sets of at most n/4 rows and this many bytes are copied together (CompactRows). */
@@ -451,6 +474,14 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
   const isF32 = X.data instanceof Float32Array;
   const x32: Float32Array = X.data instanceof Float32Array ? X.data : EMPTY32;
   const x64: Float64Array = X.data instanceof Float64Array ? X.data : EMPTY64;
+  // Working rows for the coordinate updates (see rowPrecision); the original rows serve every check.
+  const precision = options.rowPrecision ?? 'auto';
+  if (precision !== 'auto' && precision !== 'input' && precision !== 'float32') {
+    throw new EngineInputError(`unknown rowPrecision ${String(precision)}`);
+  }
+  const narrow = !isF32 && (precision === 'float32' || (precision === 'auto' && n * d >= DCD_FLOAT32_MIN_ENTRIES));
+  const u32: Float32Array = narrow ? float32Copy(x64, n * d) : x32;
+  const uIsF32 = isF32 || narrow;
 
   const alpha = new Float64Array(n);
   const w = new Float64Array(d);
@@ -461,6 +492,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
 
   let readOnlyNext = false;
   let activeSize = l;
+  let wExact = false; // w̃ was just rebuilt from α with the rows as given
   const from = options.warmStartFrom;
   if (from !== undefined && options.warmStart !== undefined) {
     throw new EngineInputError('give either warmStart or warmStartFrom, not both');
@@ -476,6 +508,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
       alpha[i] = a;
     }
     wb = rebuildW(alpha, y, x32, x64, isF32, n, d, B, w);
+    wExact = true;
     readOnlyNext = true;
   } else if (from !== undefined) {
     const prev = from.previous;
@@ -501,7 +534,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
       const delta = a * y[i] - ap * yp;
       if (delta !== 0) {
         changed++;
-        if (isF32) axpy32(delta, x32, i * d, d, w);
+        if (uIsF32) axpy32(delta, u32, i * d, d, w);
         else axpy64(delta, x64, i * d, d, w);
         wb += delta * B;
       }
@@ -530,7 +563,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
 
   let iter = 0;
   const compact = new CompactRows(n);
-  const compactMaxRows = Math.min(Math.floor(n / 4), Math.floor(COMPACT_MAX_BYTES / (Math.max(d, 1) * (isF32 ? 4 : 8))));
+  const compactMaxRows = Math.min(Math.floor(n / 4), Math.floor(COMPACT_MAX_BYTES / (Math.max(d, 1) * (uIsF32 ? 4 : 8))));
   let PGmaxOld = Infinity;
   let PGminOld = -Infinity;
   let converged = false;
@@ -543,6 +576,10 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
     if (readOnlyNext) {
       // ---- Read-only full pass: exact projected gradients and decision values at the current point.
       readOnlyNext = false;
+      // With float32 working rows, w̃ has drifted from Σαᵢyᵢx̃ᵢ of the rows as given by rounding:
+      // rebuild it in double precision so that the check below is exact.
+      if (narrow && !wExact) wb = rebuildW(alpha, y, x32, x64, isF32, n, d, B, w);
+      wExact = true;
       readOnlyPass(w, wb, B, x32, x64, isF32, n, d, y, alpha, U, diag, cost, decision, extremes);
       const PGmax = extremes[0];
       const PGmin = extremes[1];
@@ -556,6 +593,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
           if (!consistent(alpha, y, decision, w, wb, n, d)) {
             // The previous solution did not belong to these rows: rebuild w̃ from α and go on.
             wb = rebuildW(alpha, y, x32, x64, isF32, n, d, B, w);
+            wExact = true;
             readOnlyNext = true;
             continue;
           }
@@ -589,6 +627,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
 
     // ---- Updating pass over the active set (LIBLINEAR solve_l2r_l1l2_svc, one outer iteration).
     decisionsCurrent = false;
+    wExact = false;
     let PGmaxNew = -Infinity;
     let PGminNew = Infinity;
     for (let s = 0; s < activeSize - 1; s++) {
@@ -601,11 +640,11 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
     let useCompact = false;
     if (activeSize <= compactMaxRows && activeSize >= COMPACT_MIN_ROWS) {
       if (!compact.covers(index, activeSize) || activeSize * 2 <= compact.rows) {
-        compact.build(index, activeSize, isF32, x32, x64, d);
+        compact.build(index, activeSize, uIsF32, u32, x64, d);
       }
       useCompact = true;
     }
-    const src32 = useCompact ? compact.data32 : x32;
+    const src32 = useCompact ? compact.data32 : u32;
     const src64 = useCompact ? compact.data64 : x64;
     const pos = compact.pos;
     for (let s = 0; s < activeSize; s++) {
@@ -614,7 +653,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
       const yi = y[i];
       const ai = alpha[i];
       const Ui = U[i];
-      const G = yi * ((isF32 ? dot32(w, src32, off, d) : dot64(w, src64, off, d)) + wb * B) - 1 + ai * diag[i];
+      const G = yi * ((uIsF32 ? dot32(w, src32, off, d) : dot64(w, src64, off, d)) + wb * B) - 1 + ai * diag[i];
 
       let PG = 0;
       if (ai === 0) {
@@ -641,7 +680,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
       if (PG > 1e-12 || PG < -1e-12) {
         let qd = QD[i];
         if (qd !== qd) {
-          qd = (isF32 ? nrm32(src32, off, d) : nrm64(src64, off, d)) + BB + diag[i];
+          qd = (uIsF32 ? nrm32(src32, off, d) : nrm64(src64, off, d)) + BB + diag[i];
           if (!Number.isFinite(qd)) throw new EngineInputError(`row ${i} has a non-finite feature`);
           QD[i] = qd;
         }
@@ -650,7 +689,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
         an = an < Ui ? an : Ui;
         alpha[i] = an;
         const delta = (an - ai) * yi;
-        if (isF32) axpy32(delta, src32, off, d, w);
+        if (uIsF32) axpy32(delta, src32, off, d, w);
         else axpy64(delta, src64, off, d, w);
         wb += delta * B;
       }
@@ -672,6 +711,7 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
   }
 
   // ---- Certificates at the returned point.
+  if (!decisionsCurrent && narrow && !wExact) wb = rebuildW(alpha, y, x32, x64, isF32, n, d, B, w);
   if (!decisionsCurrent) readOnlyPass(w, wb, B, x32, x64, isF32, n, d, y, alpha, U, diag, cost, decision, extremes);
   if (consistencyPending && !consistent(alpha, y, decision, w, wb, n, d)) {
     wb = rebuildW(alpha, y, x32, x64, isF32, n, d, B, w);

@@ -166,6 +166,21 @@ describe('behaviour on the UCI breast cancer data (standardised)', () => {
     expect(dist(tildeOf(a), tildeOf(b))).toBeLessThan(1e-9);
   });
 
+  it("rowPrecision 'float32' iterates on float32 rows but verifies and certifies on the rows as given", () => {
+    const tol = 1e-3;
+    const narrow = solveDcd(cancer, { C: 1, tol, seed: 6, maxIterations: 50_000, rowPrecision: 'float32' });
+    const exact = solveDcd(cancer, { C: 1, tol, seed: 6, maxIterations: 50_000, rowPrecision: 'input' });
+    expect(narrow.converged).toBe(true);
+    // Re-derived from α with the Float64 rows: w, b, KKT and objectives all refer to the given problem.
+    const chk = audit(cancer, narrow, new Float64Array(cancer.X.rows).fill(1), false);
+    expect(dist(chk.wTilde, tildeOf(narrow))).toBeLessThan(1e-10 * (1 + Math.sqrt(narrow.wNormSquared)));
+    expect(chk.violation).toBeLessThanOrEqual(tol + 1e-12);
+    expect(narrow.maxKktViolation).toBeCloseTo(chk.violation, 12);
+    expect(narrow.dualObjective).toBeCloseTo(chk.dual, 9);
+    expect(narrow.primalObjective).toBeCloseTo(chk.primal, 9);
+    expect(Math.abs(narrow.primalObjective - exact.primalObjective)).toBeLessThanOrEqual(Math.max(narrow.dualityGap, exact.dualityGap));
+  });
+
   it('warm start after 12 label flips reaches the cold solution', () => {
     const base = solveDcd(cancer, { C: 1, tol: 1e-3, seed: 2, maxIterations: 50_000 });
     const y2 = Int8Array.from(cancer.y);
