@@ -169,7 +169,7 @@ describe('provenance and the audit report', () => {
   it('exports the votes that decided each label (JSON Lines and CSV)', async () => {
     const jsonl = await collect(exportLabels(w.scope, p, { format: 'jsonl', client: w.db }));
     const byId = Object.fromEntries(jsonl.trim().split('\n').map((l) => {
-      const o = JSON.parse(l) as { id: string };
+      const o = JSON.parse(l) as { id: string; votes: unknown[] };
       return [o.id, o];
     }));
     expect(byId.v1).toEqual({
