@@ -131,3 +131,24 @@ test('a tampered session cookie is treated as signed out', async ({ browser }) =
   await expect(page.getByText(/Error|stack/i)).toHaveCount(0);
   await context.close();
 });
+
+test('signing out ends the session', async ({ browser }) => {
+  const reviewer = DEMO_USERS.filter((u) => u.role === 'reviewer')[1];
+  if (!reviewer) throw new Error('the demo seed has fewer than two reviewers');
+  const context = await browser.newContext({ storageState: { cookies: [], origins: [] } });
+  const page = await context.newPage();
+  await page.goto('/signin');
+  await page.getByLabel('Email address').fill(reviewer.email);
+  await page.getByLabel('Password', { exact: true }).fill(reviewer.password);
+  await page.getByRole('button', { name: 'Sign in' }).click();
+  await expect(page.getByRole('heading', { level: 1, name: 'Projects' })).toBeVisible();
+  await page.goto('/team');
+  // A reviewer sees the team read-only.
+  await expect(page.getByRole('button', { name: 'Create invitation link' })).toHaveCount(0);
+  await page.getByRole('button', { name: 'Sign out' }).click();
+  await expect(page).toHaveURL(/\/signin/);
+  expect((await context.cookies()).some((c) => c.name.endsWith('next-auth.session-token'))).toBe(false);
+  await page.goto('/team');
+  await expect(page).toHaveURL(/\/signin\?callbackUrl=%2Fteam/);
+  await context.close();
+});

@@ -1,6 +1,7 @@
 import type { Metadata } from 'next';
 import { CreateTeamForm } from '@/components/CreateTeamForm';
 import { MyTeams } from '@/components/MyTeams';
+import { SignOutButton } from '@/components/SignOutButton';
 import { TeamInvitations } from '@/components/TeamInvitations';
 import { TeamMembers } from '@/components/TeamMembers';
 import { ROLE_LABEL } from '@/lib/domain';
@@ -84,6 +85,16 @@ export default async function TeamPage() {
 
       <section id="new-team" className="max-w-xl rounded border border-slate-300 bg-white p-4">
         <CreateTeamForm />
+      </section>
+
+      <section aria-labelledby="account-heading" className="max-w-xl space-y-2">
+        <h2 id="account-heading" className="text-lg font-semibold">
+          Your account
+        </h2>
+        <p className="text-sm">
+          Signed in as <strong>{user.name}</strong> ({user.email}). Sessions end by themselves after a working day.
+        </p>
+        <SignOutButton />
       </section>
     </div>
   );
