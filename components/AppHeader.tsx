@@ -1,9 +1,10 @@
 import Link from 'next/link';
+import { TeamSwitcher } from './TeamSwitcher';
 
 /**
- * Top bar: product mark and the way home. Screen links for a project (Queue, Boundary,
- * Revisions, Data, Settings) live in the project's own navigation, and the Team screen link
- * and team switcher are added by the session-aware part of the header.
+ * Top bar: product mark, the Projects and Team screens, and the session-aware team switcher.
+ * Screen links for one project (Queue, Boundary, Revisions, Data, Settings) live in the
+ * project's own navigation.
  */
 export function AppHeader() {
   return (
@@ -25,6 +26,9 @@ export function AppHeader() {
             Team
           </Link>
         </nav>
+        <div className="ml-auto">
+          <TeamSwitcher />
+        </div>
       </div>
     </header>
   );
