@@ -54,7 +54,7 @@ describe('describeStanding', () => {
     expect(w.headline).toBe('0.12 from the boundary, inside the margin, on the wrong side of refund | shipping');
     expect(w.details).toEqual([
       'The fitted boundaries place it with shipping, not refund.',
-      'Held out of the fit, it scores highest for shipping (−0.40 against shipping).',
+      'Held out of the fit, it lands 0.40 on the wrong side and scores highest for shipping.',
       'It lies within the near-boundary band (±0.50 of a boundary).',
       'Distances are in margin half-widths: the edges of the margin sit at 1 on either side of the boundary.',
     ]);

@@ -1,11 +1,13 @@
 /**
  * Reading a project's samples for the engine.
  *
- * Feature vectors never change after a sample is created, so the decoded matrix of a project is
- * kept in memory (`featureMatrix`) and reused by every refit and every nearest-neighbour lookup;
- * it is re-read when the project's sample count or newest creation time changes. Code that rewrites
- * features of existing samples must call `invalidateFeatureCache(projectId)`. The matrix lives in a
- * SharedArrayBuffer, so handing it to the engine's worker thread does not copy 4·n·d bytes.
+ * Feature vectors change only through imports (new samples, or an update import rewriting existing
+ * ones), and every import makes a revision of kind `import` or `update`; review revisions change
+ * labels only. So the decoded matrix of a project is kept in memory (`featureMatrix`) and reused
+ * by every refit and every nearest-neighbour lookup, and re-read when the project's sample count,
+ * its newest sample, or its newest non-review revision changes. `invalidateFeatureCache(projectId)`
+ * forces a re-read. The matrix lives in a SharedArrayBuffer, so handing it to the engine's worker
+ * thread does not copy 4·n·d bytes.
  *
  * Labels are read per revision: the label of a sample at revision N is its current label, unless a
  * LabelChange of a later revision exists, in which case it is the `fromLabel` of the earliest such
@@ -44,9 +46,12 @@ export function invalidateFeatureCache(projectId?: string): void {
 }
 
 async function fingerprintOf(client: Db | DbTx, projectId: string): Promise<{ key: string; count: number }> {
-  const agg = await client.sample.aggregate({ where: { projectId }, _count: { _all: true }, _max: { createdAt: true } });
+  const [agg, dataRevision] = await Promise.all([
+    client.sample.aggregate({ where: { projectId }, _count: { _all: true }, _max: { createdAt: true } }),
+    client.revision.findFirst({ where: { projectId, kind: { not: 'review' } }, orderBy: { number: 'desc' }, select: { number: true, createdAt: true } }),
+  ]);
   const count = agg._count._all;
-  return { key: `${count}:${agg._max.createdAt?.getTime() ?? 0}`, count };
+  return { key: `${count}:${agg._max.createdAt?.getTime() ?? 0}:${dataRevision?.number ?? -1}:${dataRevision?.createdAt.getTime() ?? 0}`, count };
 }
 
 const PAGE = 5000;

@@ -11,11 +11,15 @@
  * - The engine runs in a worker thread (workerEngine), so the server's event loop never solves.
  * - A newer revision for a project whose follow-up full pass is running cancels that pass (the
  *   quick pass of the new revision then runs without waiting); primary fits are never cancelled.
+ * - With `bootstrap`, start also queues a first fit for projects that have none (a seed script
+ *   that wrote samples directly).
  * - On start, fits left `running` by a previous process are put back to `queued` (this queue
  *   assumes it is the only worker of its database; several workers need the job system of issue 8).
  */
 import type { Db } from '../db';
 import type { Clock } from '../queue/context';
+import { writeTx } from '../queue/tx';
+import { enqueueCurrentRevisionTx } from './enqueue';
 import type { EngineRunner } from './engine';
 import type { FitJobQueue, FitRequest } from './jobs';
 import { processProject, type ProcessOutcome } from './run-fit';
@@ -30,6 +34,8 @@ export interface InProcessOptions {
   readonly onOutcome?: (projectId: string, outcome: ProcessOutcome) => void;
   /** queue a full pass after each quick pass (default true) */
   readonly followUp?: boolean;
+  /** on start, queue a fit for every project that has none yet (default false) */
+  readonly bootstrap?: boolean;
 }
 
 interface Active {
@@ -58,6 +64,7 @@ export class InProcessFitQueue implements FitJobQueue {
     this.#started = true;
     this.#stopping = false;
     await this.#db.fit.updateMany({ where: { status: 'running' }, data: { status: 'queued', progress: 0, startedAt: null } });
+    if (this.#options.bootstrap) await this.#bootstrap();
     this.#timer = setInterval(() => void this.#scan(), this.#options.pollMs ?? 2000);
     this.#timer.unref?.();
     await this.#scan();
@@ -94,6 +101,21 @@ export class InProcessFitQueue implements FitJobQueue {
   /** True while a fit of the project runs in this process. */
   isRunning(projectId: string): boolean {
     return this.#active.has(projectId);
+  }
+
+  /** Projects that never had a fit (e.g. written by a seed script) get one of their current revision. */
+  async #bootstrap(): Promise<void> {
+    const projects = await this.#db.project.findMany({ where: { fits: { none: {} }, revisions: { some: {} } }, select: { id: true } });
+    for (const p of projects) {
+      try {
+        await writeTx(this.#db, [{ table: 'Project', id: p.id }], async (tx) => {
+          if ((await tx.fit.count({ where: { projectId: p.id } })) > 0) return null;
+          return enqueueCurrentRevisionTx(tx, p.id);
+        });
+      } catch (e) {
+        this.#options.log?.(`could not queue the first fit of project ${p.id}: ${e instanceof Error ? e.message : String(e)}`);
+      }
+    }
   }
 
   async #scan(): Promise<void> {

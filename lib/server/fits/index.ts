@@ -32,6 +32,7 @@ export function ensureFitWorker(client: Db = defaultDb()): Promise<FitJobQueue> 
   if (existing) return Promise.resolve(existing);
   const queue = new InProcessFitQueue(client, {
     engine: workerEngine(),
+    bootstrap: true,
     log: (line) => console.log(`[refit] ${line}`),
   });
   setFitJobQueue(queue);

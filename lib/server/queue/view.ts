@@ -14,6 +14,7 @@ import { forbidden, notFound } from '../authz/errors';
 import type { Db } from '../db';
 import { featureMatrix } from '../fits/data';
 import { unpackDetail } from '../fits/standings-store';
+import { pendingChanges } from './apply';
 import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
 import { nearestNeighbours, type Scaling } from './neighbours';
@@ -361,4 +362,50 @@ export async function queueStatus(deps: QueueDeps, scope: TeamScope, projectId: 
     applyEvery: readProjectSettings(project.settings).applyEvery,
     generatedAt: now.toISOString(),
   };
+}
+
+export interface PendingChangeView {
+  readonly itemId: string;
+  readonly externalId: string;
+  readonly fromLabel: string;
+  readonly toLabel: string;
+  readonly closedAt: string | null;
+  readonly decidedBy: 'consensus' | 'lead';
+}
+
+/** Everything the queue screen polls (route GET /api/projects/[projectId]/status). */
+export interface QueueBoard {
+  readonly status: QueueStatusView;
+  readonly recent: DecisionView[];
+  /** leads only */
+  readonly lead: { readonly splits: SplitItemView[]; readonly pending: PendingChangeView[] } | null;
+}
+
+export async function queueBoard(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string): Promise<QueueBoard> {
+  const isLead = roleAtLeast(actor.role, 'lead');
+  const [status, recent, splits, pending] = await Promise.all([
+    queueStatus(deps, scope, projectId),
+    recentDecisions(deps, scope, projectId),
+    isLead ? splitItems(deps, scope, actor, projectId) : Promise.resolve(null),
+    isLead ? pendingChangeList(deps, scope, projectId) : Promise.resolve(null),
+  ]);
+  return { status, recent, lead: splits && pending ? { splits, pending } : null };
+}
+
+async function pendingChangeList(deps: QueueDeps, scope: TeamScope, projectId: string): Promise<PendingChangeView[]> {
+  const list = await pendingChanges(deps, scope, projectId);
+  return list.map((p) => ({
+    itemId: p.itemId,
+    externalId: p.externalId,
+    fromLabel: p.fromLabel,
+    toLabel: p.toLabel,
+    closedAt: p.closedAt ? p.closedAt.toISOString() : null,
+    decidedBy: p.decidedBy,
+  }));
+}
+
+/** Name and classes of a project, for the queue and settings screens. */
+export async function queueProjectHeader(deps: QueueDeps, scope: TeamScope, projectId: string): Promise<{ name: string; classes: string[]; settings: ReturnType<typeof readProjectSettings> }> {
+  const project = await projectInScope(deps.db, scope, projectId);
+  return { name: project.name, classes: await classNames(deps.db, project.id), settings: readProjectSettings(project.settings) };
 }

@@ -92,7 +92,7 @@ export function describeStanding(f: StandingFacts): StandingWords {
     const held = placement(f.classes, f.oofDecisions, f.label);
     heldOutPosition = held.position;
     if (held.placedIn !== f.label) {
-      details.push(`Held out of the fit, it scores highest for ${held.placedIn} (${held.position < 0 ? '−' : ''}${fmt(held.position)} against ${held.rival}).`);
+      details.push(`Held out of the fit, it lands ${fmt(held.position)} on the wrong side and scores highest for ${held.placedIn}.`);
     } else if (held.position < 1) {
       details.push(`Held out of the fit, it stays on its own side but inside the margin (${fmt(held.position)}).`);
     } else {
