@@ -7,6 +7,9 @@ import { fileURLToPath } from 'node:url';
 
 export const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
 
+// This machine class has no general network; Next's anonymous telemetry would only time out.
+process.env.NEXT_TELEMETRY_DISABLED ??= '1';
+
 /** Runs a command in the repo root with inherited output; exits the process on failure. */
 export function run(cmd, args, env = {}) {
   const r = spawnSync(cmd, args, { cwd: root, stdio: 'inherit', env: { ...process.env, ...env } });
