@@ -187,6 +187,70 @@ function axpy64(a: number, x: Float64Array, off: number, d: number, w: Float64Ar
   for (; j < d; j++) w[j] += a * x[off + j];
 }
 
+/** w += a·x[off …]; returns w_new · x[offNext …] (the next sample's dot product, same sweep). */
+function axpyDot32(a: number, x: Float32Array, off: number, offNext: number, d: number, w: Float64Array): number {
+  let s0 = 0;
+  let s1 = 0;
+  let s2 = 0;
+  let s3 = 0;
+  const end = d & ~3;
+  let j = 0;
+  for (; j < end; j += 4) {
+    const o = off + j;
+    const p = offNext + j;
+    const w0 = w[j] + a * x[o];
+    const w1 = w[j + 1] + a * x[o + 1];
+    const w2 = w[j + 2] + a * x[o + 2];
+    const w3 = w[j + 3] + a * x[o + 3];
+    w[j] = w0;
+    w[j + 1] = w1;
+    w[j + 2] = w2;
+    w[j + 3] = w3;
+    s0 += w0 * x[p];
+    s1 += w1 * x[p + 1];
+    s2 += w2 * x[p + 2];
+    s3 += w3 * x[p + 3];
+  }
+  for (; j < d; j++) {
+    const wj = w[j] + a * x[off + j];
+    w[j] = wj;
+    s0 += wj * x[offNext + j];
+  }
+  return s0 + s1 + (s2 + s3);
+}
+
+/** As axpyDot32 for Float64Array rows. */
+function axpyDot64(a: number, x: Float64Array, off: number, offNext: number, d: number, w: Float64Array): number {
+  let s0 = 0;
+  let s1 = 0;
+  let s2 = 0;
+  let s3 = 0;
+  const end = d & ~3;
+  let j = 0;
+  for (; j < end; j += 4) {
+    const o = off + j;
+    const p = offNext + j;
+    const w0 = w[j] + a * x[o];
+    const w1 = w[j + 1] + a * x[o + 1];
+    const w2 = w[j + 2] + a * x[o + 2];
+    const w3 = w[j + 3] + a * x[o + 3];
+    w[j] = w0;
+    w[j + 1] = w1;
+    w[j + 2] = w2;
+    w[j + 3] = w3;
+    s0 += w0 * x[p];
+    s1 += w1 * x[p + 1];
+    s2 += w2 * x[p + 2];
+    s3 += w3 * x[p + 3];
+  }
+  for (; j < d; j++) {
+    const wj = w[j] + a * x[off + j];
+    w[j] = wj;
+    s0 += wj * x[offNext + j];
+  }
+  return s0 + s1 + (s2 + s3);
+}
+
 function nrm32(x: Float32Array, off: number, d: number): number {
   let s0 = 0;
   let s1 = 0;
@@ -643,36 +707,48 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
     const src32 = useCompact ? compact.data32 : u32;
     const src64 = useCompact ? compact.data64 : x64;
     const pos = compact.pos;
-    for (let s = 0; s < activeSize; s++) {
+    // The dot product of the next sample is fused with the axpy of the current one (one sweep over w
+    // instead of two); `pending` holds w̃·xᵢ (without the bias) for i = index[s].
+    let pending = 0;
+    if (activeSize > 0) {
+      const off0 = (useCompact ? pos[index[0]] : index[0]) * d;
+      pending = uIsF32 ? dot32(w, src32, off0, d) : dot64(w, src64, off0, d);
+    }
+    let s = 0;
+    while (s < activeSize) {
       const i = index[s];
       const off = (useCompact ? pos[i] : i) * d;
       const yi = y[i];
       const ai = alpha[i];
       const Ui = U[i];
-      const G = yi * ((uIsF32 ? dot32(w, src32, off, d) : dot64(w, src64, off, d)) + wb * B) - 1 + ai * diag[i];
+      const G = yi * (pending + wb * B) - 1 + ai * diag[i];
 
       let PG = 0;
+      let shrink = false;
       if (ai === 0) {
-        if (G > PGmaxOld) {
-          activeSize--;
-          index[s] = index[activeSize];
-          index[activeSize] = i;
-          s--;
-          continue;
-        } else if (G < 0) PG = G;
+        if (G > PGmaxOld) shrink = true;
+        else if (G < 0) PG = G;
       } else if (ai === Ui) {
-        if (G < PGminOld) {
-          activeSize--;
-          index[s] = index[activeSize];
-          index[activeSize] = i;
-          s--;
-          continue;
-        } else if (G > 0) PG = G;
+        if (G < PGminOld) shrink = true;
+        else if (G > 0) PG = G;
       } else PG = G;
+
+      if (shrink) {
+        activeSize--;
+        index[s] = index[activeSize];
+        index[activeSize] = i;
+        if (s < activeSize) {
+          const offN = (useCompact ? pos[index[s]] : index[s]) * d;
+          pending = uIsF32 ? dot32(w, src32, offN, d) : dot64(w, src64, offN, d);
+        }
+        continue;
+      }
 
       if (PG > PGmaxNew) PGmaxNew = PG;
       if (PG < PGminNew) PGminNew = PG;
 
+      const hasNext = s + 1 < activeSize;
+      const offNext = hasNext ? (useCompact ? pos[index[s + 1]] : index[s + 1]) * d : 0;
       if (PG > 1e-12 || PG < -1e-12) {
         let qd = QD[i];
         if (qd !== qd) {
@@ -685,10 +761,15 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
         an = an < Ui ? an : Ui;
         alpha[i] = an;
         const delta = (an - ai) * yi;
-        if (uIsF32) axpy32(delta, src32, off, d, w);
+        if (hasNext) {
+          pending = uIsF32 ? axpyDot32(delta, src32, off, offNext, d, w) : axpyDot64(delta, src64, off, offNext, d, w);
+        } else if (uIsF32) axpy32(delta, src32, off, d, w);
         else axpy64(delta, src64, off, d, w);
         wb += delta * B;
+      } else if (hasNext) {
+        pending = uIsF32 ? dot32(w, src32, offNext, d) : dot64(w, src64, offNext, d);
       }
+      s++;
     }
     iter++;
     const passViolation = (PGmaxNew > 0 ? PGmaxNew : 0) - (PGminNew < 0 ? PGminNew : 0);
