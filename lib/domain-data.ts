@@ -118,18 +118,23 @@ const BooleanFlag = z
   .union([z.boolean(), z.enum(['1', '0', 'true', 'false', 'yes', 'no', ''])])
   .transform((v) => v === true || v === '1' || v === 'true' || v === 'yes');
 
-const SinceSchema = z.coerce
-  .number({ error: 'since must be a revision number.' })
-  .int({ error: 'since must be a whole revision number.' })
-  .min(0, { error: 'since must be 0 or more.' })
-  .max(1_000_000_000, { error: 'since is too large.' });
+/** A revision number from a query string; an empty value (a blank form field) means "all". */
+const SinceSchema = z.preprocess(
+  (v) => (v === '' ? undefined : v),
+  z.coerce
+    .number({ error: 'since must be a revision number.' })
+    .int({ error: 'since must be a whole revision number.' })
+    .min(0, { error: 'since must be 0 or more.' })
+    .max(1_000_000_000, { error: 'since is too large.' })
+    .optional(),
+);
 
 /** Export download from the Data screen. */
 export const ExportQuery = z.object({
   projectId: IdSchema,
   format: z.enum(EXPORT_FORMATS, { error: 'Choose a format: csv, jsonl or report.' }).default('csv'),
   features: BooleanFlag.default(false),
-  since: SinceSchema.optional(),
+  since: SinceSchema,
 });
 export type ExportQuery = z.infer<typeof ExportQuery>;
 
@@ -138,7 +143,7 @@ export const LabelsQuery = z.object({
   projectId: IdSchema,
   format: z.enum(['jsonl', 'csv'], { error: 'Choose a format: jsonl or csv.' }).default('jsonl'),
   features: BooleanFlag.default(false),
-  since: SinceSchema.optional(),
+  since: SinceSchema,
 });
 export type LabelsQuery = z.infer<typeof LabelsQuery>;
 

@@ -236,3 +236,22 @@ describe('provenance and the audit report', () => {
     await expect(auditReport(w.scope, foreign.id, { client: w.db })).rejects.toMatchObject({ status: 404 });
   });
 });
+
+describe('projects larger than one query batch', () => {
+  // The SQLite driver refuses more than 999 bound parameters per query; 1,234 samples make every
+  // page, provenance lookup and update-mode lookup cross that line unless they are chunked.
+  it('exports, and updates in update mode, 1,234 samples', async () => {
+    const p = await newProject(w, { featureCount: 1 });
+    const rows = Array.from({ length: 1234 }, (_, i) => `b${String(i).padStart(4, '0')},cat,${i}`);
+    await ok(runImport(w, p, `id,label,x\n${rows.join('\n')}\n`));
+    const relabelled = rows.map((r) => r.replace(',cat,', ',dog,'));
+    const r = await ok(runImport(w, p, `id,label,x\n${relabelled.join('\n')}\n`, { mode: 'update' }));
+    expect(r).toMatchObject({ relabelled: 1234, revisionNumber: 1 });
+    const jsonl = await collect(exportLabels(w.scope, p, { format: 'jsonl', client: w.db }));
+    const lines = jsonl.trim().split('\n').map((l) => JSON.parse(l) as { id: string; label: string; original_label: string });
+    expect(lines).toHaveLength(1234);
+    expect(lines[0]).toMatchObject({ id: 'b0000', label: 'dog', original_label: 'cat' });
+    expect(lines[1233]).toMatchObject({ id: 'b1233', label: 'dog' });
+    expect(new Set(lines.map((l) => l.id)).size).toBe(1234);
+  });
+});

@@ -18,6 +18,7 @@ import { notFound } from '../authz/errors';
 import type { TeamScope } from '../authz/scope';
 import { db, type Db } from '../db';
 import { decodeFeatures } from '../features';
+import { IN_LIST_LIMIT } from '../import/apply';
 import { formatFloat32 } from '../import/numbers';
 
 export type LabelsFormat = 'csv' | 'jsonl';
@@ -92,6 +93,12 @@ async function projectInScope(client: Db, scope: TeamScope, projectId: string) {
  */
 async function provenanceOf(client: Db, samples: SampleRow[]): Promise<Map<string, { votes: VoteRecord[]; decidedBy: string | null }>> {
   const out = new Map<string, { votes: VoteRecord[]; decidedBy: string | null }>();
+  if (samples.length > IN_LIST_LIMIT) {
+    for (let i = 0; i < samples.length; i += IN_LIST_LIMIT) {
+      for (const [k, v] of await provenanceOf(client, samples.slice(i, i + IN_LIST_LIMIT))) out.set(k, v);
+    }
+    return out;
+  }
   if (samples.length === 0) return out;
   const ids = samples.map((s) => s.id);
   const labelRevision = new Map(samples.map((s) => [s.id, s.labelRevision]));
@@ -110,7 +117,7 @@ async function provenanceOf(client: Db, samples: SampleRow[]): Promise<Map<strin
     orderBy: [{ round: 'asc' }],
   });
   for (const k of kept) itemOf.set(k.sampleId, k.id); // ascending rounds: the last one wins
-  const itemIds = [...new Set(itemOf.values())];
+  const itemIds = [...new Set(itemOf.values())]; // at most one per sample, so within the limit
   if (itemIds.length === 0) return out;
   const items = await client.queueItem.findMany({
     where: { id: { in: itemIds } },
@@ -164,7 +171,7 @@ export async function* exportLabels(scope: TeamScope, projectId: string, options
   const client = options.client ?? db();
   const project = await projectInScope(client, scope, projectId);
   const full = options.features === true;
-  const pageSize = options.pageSize ?? 1000;
+  const pageSize = options.pageSize ?? IN_LIST_LIMIT;
   const since = options.since;
   const metaKeys = full ? await metaKeysOf(client, projectId, since) : [];
   const d = project.featureCount;

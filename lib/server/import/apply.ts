@@ -20,6 +20,12 @@ import { readSpool, type StagedRow } from './spool';
 
 export type Dialect = 'sqlite' | 'postgresql';
 
+/**
+ * Most values in one `IN (…)` list: the SQLite driver adapter refuses queries with more than
+ * 999 bound parameters (the classic SQLITE_MAX_VARIABLE_NUMBER), so lookups go in chunks.
+ */
+export const IN_LIST_LIMIT = 500;
+
 const dialects = new WeakMap<object, Dialect>();
 
 /** Which database a client talks to (probed once per client). */
@@ -218,10 +224,15 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
             await inserter.add(batch);
             added += batch.length;
           } else {
-            const existing = await tx.sample.findMany({
-              where: { projectId: project.id, externalId: { in: batch.map((r) => r.id) } },
-              select: { id: true, externalId: true, currentLabel: true, features: true, text: true, imageRef: true, metadata: true },
-            });
+            const existing = [];
+            for (let i = 0; i < batch.length; i += IN_LIST_LIMIT) {
+              existing.push(
+                ...(await tx.sample.findMany({
+                  where: { projectId: project.id, externalId: { in: batch.slice(i, i + IN_LIST_LIMIT).map((r) => r.id) } },
+                  select: { id: true, externalId: true, currentLabel: true, features: true, text: true, imageRef: true, metadata: true },
+                })),
+              );
+            }
             const byId = new Map(existing.map((s) => [s.externalId, s]));
             const fresh = batch.filter((r) => !byId.has(r.id));
             if (fresh.length > 0) {
