@@ -362,9 +362,11 @@ export function ImportPanel({ projectId, featureCount, maxClasses, classCount }:
             text={`${mb(progress.upload.loaded)} of ${mb(progress.upload.total)} (${uploadPercent} %)`}
           />
           <p className="text-sm" aria-live="polite">
-            {progress.server.phase === 'reading'
-              ? `Checked ${n(progress.server.rows)} rows so far.`
-              : `All ${n(progress.server.rows)} rows passed the checks. Writing: ${n(progress.server.written)} rows.`}
+            {stage !== 'server'
+              ? 'The server checks the rows as they arrive.'
+              : progress.server.phase === 'reading'
+                ? `Checked ${n(progress.server.rows)} rows so far.`
+                : `All ${n(progress.server.rows)} rows passed the checks. Writing them to the project.`}
           </p>
           {progress.server.phase === 'writing' ? (
             <ProgressLine label="Writing" value={progress.server.written} max={Math.max(1, progress.server.rows)} text={`${n(progress.server.written)} of ${n(progress.server.rows)} rows`} />
@@ -400,15 +402,24 @@ export function ImportPanel({ projectId, featureCount, maxClasses, classCount }:
 
 function ProgressLine({ label, value, max, text }: { label: string; value: number; max: number; text: string }) {
   const id = useId();
+  const percent = max > 0 ? Math.min(100, Math.max(0, (value / max) * 100)) : 0;
   return (
     <div className="space-y-1">
       <div className="flex justify-between text-sm">
         <span id={id}>{label}</span>
         <span className="tabular-nums">{text}</span>
       </div>
-      <progress aria-labelledby={id} value={value} max={max} className="h-3 w-full accent-oi-blue">
-        {text}
-      </progress>
+      <div
+        role="progressbar"
+        aria-labelledby={id}
+        aria-valuemin={0}
+        aria-valuemax={max}
+        aria-valuenow={value}
+        aria-valuetext={text}
+        className="h-3 w-full overflow-hidden rounded border border-slate-400 bg-white"
+      >
+        <div className="h-full bg-oi-blue" style={{ width: `${percent}%` }} />
+      </div>
     </div>
   );
 }
