@@ -15,7 +15,7 @@
  */
 import { spawnSync } from 'node:child_process';
 import { createReadStream, createWriteStream, mkdtempSync, readFileSync, rmSync, statSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { cpus, loadavg, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import pg from 'pg';
@@ -213,6 +213,7 @@ async function main(): Promise<void> {
       );
     }
     console.log(`\nTargets: under ${TARGET_SECONDS} s and under ${gb(TARGET_PEAK_BYTES)} peak memory per database.`);
+    console.log(`Machine: ${cpus().length} cores, load average ${loadavg().map((l) => l.toFixed(1)).join(' / ')} (1 / 5 / 15 min) at the end of the run.`);
     if (!allPass) process.exitCode = 1;
   } finally {
     rmSync(dir, { recursive: true, force: true });
