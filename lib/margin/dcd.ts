@@ -63,7 +63,8 @@
  *
  * Performance notes: the inner dot/axpy loops are specialised per array type (Float32Array and
  * Float64Array rows, Float64Array weights) so that every call site stays monomorphic, unrolled by four;
- * no allocation or closure happens inside a pass. Once shrinking has cut the active set to a quarter of
+ * no allocation or closure happens inside a pass. The axpy of an update is fused with the dot product
+ * of the next sample in the pass (same arithmetic, one sweep over w). Once shrinking has cut the active set to a quarter of
  * the rows or less, its rows are copied together (CompactRows), which saves cache and TLB misses of the
  * random visiting order.
  */
