@@ -43,6 +43,12 @@ const n = (x: number) => x.toLocaleString('en-US');
 const mb = (bytes: number) =>
   bytes < 1024 * 1024 ? `${Math.max(1, Math.round(bytes / 1024))} KB` : `${(bytes / (1024 * 1024)).toFixed(bytes < 10 * 1024 * 1024 ? 1 : 0)} MB`;
 
+/** 32 random hex characters (getRandomValues also works outside secure contexts, unlike randomUUID). */
+function uploadBatchId(): string {
+  const bytes = crypto.getRandomValues(new Uint8Array(16));
+  return Array.from(bytes, (b) => b.toString(16).padStart(2, '0')).join('');
+}
+
 /** POSTs a body with XMLHttpRequest (for upload progress); `onText` sees the answer as it streams in. */
 function post(
   url: string,
@@ -134,7 +140,7 @@ export function ImportPanel({ projectId, featureCount, maxClasses, classCount }:
     }
     setOutcome(null);
     setFailure(null);
-    const batch = images.length > 0 ? crypto.randomUUID().replace(/-/g, '') : null;
+    const batch = images.length > 0 ? uploadBatchId() : null;
     try {
       if (batch !== null) {
         setStage('images');
