@@ -265,3 +265,28 @@ describe('scope', () => {
     expect(await w.db.sample.count({ where: { projectId: foreign.id } })).toBe(0);
   });
 });
+
+describe('a busy database', () => {
+  it('answers 409 with nothing written when another writer holds the SQLite write lock', async () => {
+    if (w.t.config.provider !== 'sqlite') return; // PostgreSQL has no database-wide write lock
+    const { default: Database } = await import('better-sqlite3');
+    const p = await newProject(w, { featureCount: 1 });
+    const before = await projectState(w, p);
+    const other = new Database(w.t.config.file);
+    other.exec('BEGIN IMMEDIATE'); // another process's write transaction
+    try {
+      const r = await runImport(w, p, 'id,label,x\nlock1,a,1\n');
+      if (r.ok) throw new Error('expected a refusal');
+      expect([r.status, r.problems.map((x) => x.message)]).toEqual([
+        409,
+        ['The database is busy writing another change. Nothing was imported; try again in a moment.'],
+      ]);
+    } finally {
+      other.exec('ROLLBACK');
+      other.close();
+    }
+    expect(await projectState(w, p)).toEqual(before);
+    const again = await runImport(w, p, 'id,label,x\nlock1,a,1\n');
+    expect(again.ok).toBe(true);
+  });
+});

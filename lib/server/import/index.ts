@@ -305,6 +305,7 @@ export async function importSamples(
 }
 
 const CONCURRENT_CHANGE = 'Another change to this project was saved while the file was being imported. Nothing was imported; try again.';
+const DATABASE_BUSY = 'The database is busy writing another change. Nothing was imported; try again in a moment.';
 
 /** The message for an expected refusal during the write (conflicts), or null for faults. */
 function conflictMessage(error: unknown): string | null {
@@ -313,6 +314,9 @@ function conflictMessage(error: unknown): string | null {
   }
   const code = error && typeof error === 'object' && 'code' in error ? (error as { code: unknown }).code : null;
   if (code === 'P2002' || code === 'P2034') return CONCURRENT_CHANGE;
+  // P1008: the database did not let the transaction write in time (SQLite: another writer holds
+  // the lock beyond the busy timeout).
+  if (code === 'P1008') return DATABASE_BUSY;
   return null;
 }
 
