@@ -1,0 +1,176 @@
+/**
+ * Data of the Boundary screen for one boundary (one-vs-rest) of a project's newest fit that still
+ * has standings: every sample's signed distance f_k(x)/‖w_k‖ (from the decision values stored in
+ * Standing.detail), its position on the vertical axis (lib/projection.ts), its label at the fit's
+ * revision and the flags for this boundary, plus the margin band ±1/‖w_k‖.
+ *
+ * Inputs are decoded from Sample.features and preprocessed with the model's own preprocessor, so
+ * the vertical direction lives in the space the boundary was trained in.
+ */
+import { boundaryPicture } from '../../projection';
+import type { Preprocessor, ScaleKind } from '../../margin/preprocess';
+import { applyPreprocessor } from '../../margin/preprocess';
+import type { TeamScope } from '../authz/scope';
+import type { Db } from '../db';
+import { decodeFeaturesInto } from '../features';
+import { decodeModel } from '../fits/model-codec';
+import { unpackDetail } from '../fits/standings-store';
+import { labelsAtRevision, scopedProject } from './labels';
+import { parseJson } from './timeline';
+
+/** Bits of BoundaryPoint.f for the chosen boundary. */
+export const PF_WRONG_SIDE = 1;
+export const PF_INSIDE_MARGIN = 2;
+export const PF_NEAR = 4;
+export const PF_PIVOT = 8;
+
+export interface BoundaryPoint {
+  /** Sample.id */
+  readonly id: string;
+  /** external id */
+  readonly e: string;
+  /** class index (label at the fit's revision) */
+  readonly c: number;
+  /** signed distance */
+  readonly x: number;
+  /** vertical coordinate */
+  readonly y: number;
+  /** decision value f(x) */
+  readonly d: number;
+  /** flag bits for this boundary */
+  readonly f: number;
+}
+
+export interface BoundaryData {
+  readonly projectName: string;
+  readonly revision: number;
+  readonly currentRevision: number;
+  readonly fitId: string;
+  readonly classes: readonly string[];
+  readonly boundaries: readonly { readonly index: number; readonly name: string; readonly positive: string }[];
+  readonly boundary: number;
+  readonly positive: string;
+  readonly kernel: string;
+  readonly marginWidth: number | null;
+  /** 1/‖w‖ */
+  readonly band: number | null;
+  readonly vertical: 'orthogonal-to-w' | 'input-pca';
+  /** share of the (w-removed) variance along the vertical direction */
+  readonly verticalShare: number;
+  readonly points: readonly BoundaryPoint[];
+}
+
+export type BoundaryResult =
+  | { readonly kind: 'ok'; readonly data: BoundaryData }
+  | { readonly kind: 'no-fit'; readonly projectName: string; readonly currentRevision: number; readonly pending: boolean };
+
+/** null when the project is not the caller's team's. */
+export async function boundaryData(client: Db, scope: TeamScope, projectId: string, boundaryIndex = 0): Promise<BoundaryResult | null> {
+  const project = await scopedProject(client, scope.teamId, projectId);
+  if (!project) return null;
+  const fit = await client.fit.findFirst({
+    where: { projectId, status: 'done', model: { not: null }, standings: { some: {} } },
+    orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }],
+    select: { id: true, revisionNumber: true, model: true, metrics: true, settings: true },
+  });
+  if (!fit || !fit.model) {
+    const pending = (await client.fit.count({ where: { projectId, status: { in: ['queued', 'running'] } } })) > 0;
+    return { kind: 'no-fit', projectName: project.name, currentRevision: project.currentRevision, pending };
+  }
+  const model = decodeModel(fit.model);
+  const metrics = parseJson(fit.metrics);
+  const k = Math.min(Math.max(0, Math.trunc(boundaryIndex)), model.boundaries.length - 1);
+  const b = model.boundaries[k];
+  const cols = model.preprocessor.cols;
+  const [samples, standings, labels] = await Promise.all([
+    client.sample.findMany({ where: { projectId }, orderBy: { externalId: 'asc' }, select: { id: true, externalId: true, features: true } }),
+    client.standing.findMany({ where: { fitId: fit.id }, select: { sampleId: true, detail: true, flags: true } }),
+    labelsAtRevision(client, projectId, fit.revisionNumber),
+  ]);
+  const standingOf = new Map(standings.map((s) => [s.sampleId, s] as const));
+  const kept = samples.filter((s) => standingOf.has(s.id) && labels.has(s.id) && s.features.byteLength === cols * 4);
+  const raw = new Float64Array(kept.length * cols);
+  kept.forEach((s, i) => decodeFeaturesInto(s.features, raw, i * cols));
+  const p = model.header.preprocessor;
+  const pre: Preprocessor = {
+    kind: p.kind as ScaleKind,
+    cols,
+    mean: model.preprocessor.mean,
+    scale: model.preprocessor.scale,
+    zeroVarianceColumns: p.zeroVarianceColumns,
+    zeroNormRows: p.zeroNormRows,
+  };
+  const X = applyPreprocessor(pre, { data: raw, rows: kept.length, cols });
+  const decision = new Float64Array(kept.length);
+  kept.forEach((s, i) => {
+    const d = unpackDetail(standingOf.get(s.id)?.detail ?? null);
+    decision[i] = d ? (d.decision[k] ?? 0) : 0;
+  });
+  const w = b.w ? Float64Array.from(b.w.subarray(0, cols)) : null;
+  const picture = boundaryPicture(X, decision, b.wNorm, w);
+  const classes = model.header.classes;
+  const nearBand = typeof metrics.nearBand === 'number' ? metrics.nearBand : 0.5;
+  const points: BoundaryPoint[] = kept.map((s, i) => {
+    const label = labels.get(s.id) as string;
+    const y = label === b.positive ? 1 : -1;
+    const m = y * decision[i];
+    let f = 0;
+    if (m < 0) f |= PF_WRONG_SIDE;
+    else if (m < 1 - 1e-3) f |= PF_INSIDE_MARGIN;
+    if (Math.abs(decision[i]) <= nearBand) f |= PF_NEAR;
+    if ((standingOf.get(s.id)?.flags ?? '').split(',').includes('pivot')) f |= PF_PIVOT;
+    return { id: s.id, e: s.externalId, c: classes.indexOf(label), x: picture.x[i], y: picture.y[i], d: decision[i], f };
+  });
+  return {
+    kind: 'ok',
+    data: {
+      projectName: project.name,
+      revision: fit.revisionNumber,
+      currentRevision: project.currentRevision,
+      fitId: fit.id,
+      classes,
+      boundaries: model.boundaries.map((x, i) => ({ index: i, name: x.name, positive: x.positive })),
+      boundary: k,
+      positive: b.positive,
+      kernel: model.header.kernel.type,
+      marginWidth: b.marginWidth,
+      band: picture.band,
+      vertical: picture.vertical,
+      verticalShare: picture.direction.share,
+      points,
+    },
+  };
+}
+
+export interface SampleDetail {
+  readonly id: string;
+  readonly externalId: string;
+  readonly text: string | null;
+  readonly originalLabel: string;
+  readonly currentLabel: string;
+  readonly changes: readonly { readonly revision: number; readonly from: string; readonly to: string }[];
+}
+
+/** One sample of a project of the caller's team (for the detail panel); null when not there. */
+export async function sampleDetail(client: Db, scope: TeamScope, projectId: string, sampleId: string): Promise<SampleDetail | null> {
+  const s = await client.sample.findFirst({
+    where: { id: sampleId, projectId, project: { teamId: scope.teamId } },
+    select: {
+      id: true,
+      externalId: true,
+      text: true,
+      originalLabel: true,
+      currentLabel: true,
+      labelChanges: { orderBy: { revisionNumber: 'asc' }, select: { revisionNumber: true, fromLabel: true, toLabel: true } },
+    },
+  });
+  if (!s) return null;
+  return {
+    id: s.id,
+    externalId: s.externalId,
+    text: s.text,
+    originalLabel: s.originalLabel,
+    currentLabel: s.currentLabel,
+    changes: s.labelChanges.map((c) => ({ revision: c.revisionNumber, from: c.fromLabel, to: c.toLabel })),
+  };
+}
