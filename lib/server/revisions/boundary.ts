@@ -108,10 +108,13 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
   });
   const w = b.w ? Float64Array.from(b.w.subarray(0, cols)) : null;
   const picture = boundaryPicture(X, decision, b.wNorm, w);
-  const classes = model.header.classes;
+  // Project class order (ProjectClass.position), as on every other screen, so a class keeps its colour and shape.
+  const classes = [...project.classes.map((c) => c.name)];
+  for (const c of model.header.classes) if (!classes.includes(c)) classes.push(c);
   const nearBand = typeof metrics.nearBand === 'number' ? metrics.nearBand : 0.5;
   const points: BoundaryPoint[] = kept.map((s, i) => {
     const label = labels.get(s.id) as string;
+    if (!classes.includes(label)) classes.push(label);
     const y = label === b.positive ? 1 : -1;
     const m = y * decision[i];
     let f = 0;
