@@ -76,6 +76,19 @@ test('Boundary screen: histogram and picture of every sample, margin width match
   await page.getByRole('navigation', { name: 'Choose the boundary' }).getByRole('link').nth(1).click();
   await expect(page.getByRole('link', { name: /vs the rest/ }).nth(1)).toHaveAttribute('aria-current', 'page');
 
+  // a pair of classes: only those two classes' samples, no margin band
+  const pairForm = page.getByRole('form', { name: 'Show a pair of classes' });
+  await pairForm.getByLabel('Pair: class').selectOption({ index: 0 });
+  await pairForm.getByLabel('against').selectOption({ index: 1 });
+  await pairForm.getByRole('button', { name: 'Show the pair' }).click();
+  await expect(page.getByTestId('pair-note')).toBeVisible();
+  const pairCount = Number(await page.getByTestId('boundary-sample-count').getAttribute('data-value'));
+  expect(pairCount).toBeGreaterThan(0);
+  expect(pairCount).toBeLessThan(sampleCount);
+  await expect(page.getByTestId('histogram-total')).toHaveAttribute('data-total', String(pairCount));
+  await page.screenshot({ path: 'test-results/boundary-pair.png', fullPage: true });
+  await noSeriousViolations(page);
+
   // the same fit's margin width on the Revisions screen (from Fit.metrics)
   await page.goto(`${base}/revisions`);
   const cell = page.locator(`tr[data-revision="${revision}"]`).first().getByTestId('margin-width');

@@ -235,6 +235,7 @@ export function BoundaryScatter({ points, classes, band, positive, vertical, sam
       <ul className="flex flex-wrap gap-x-4 gap-y-1 text-xs">
         {classes.map((name, k) => {
           const { colour, shape } = classStyle(k);
+          if (!points.some((p) => p.c === k)) return null;
           return (
             <li key={name} className="flex items-center gap-1">
               <svg aria-hidden="true" width="12" height="12" viewBox="-6 -6 12 12">

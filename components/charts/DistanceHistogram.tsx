@@ -36,8 +36,10 @@ export function DistanceHistogram({ x, c, classes, band, positive }: { x: readon
   }, [x, c, classes, band]);
   const sx = scaleLinear().domain(domain).range([M.left, W - M.right]);
   const maxCount = Math.max(1, ...counts.flat());
-  const H = M.top + ROW * classes.length + M.bottom;
   const totals = counts.map((r) => r.reduce((s, v) => s + v, 0));
+  // classes without samples here (e.g. outside a chosen pair) get no row
+  const visible = classes.map((_, k) => k).filter((k) => totals[k] > 0);
+  const H = M.top + ROW * Math.max(1, visible.length) + M.bottom;
   const total = totals.reduce((s, v) => s + v, 0);
   const readout = active ? `${classes[active.k]}: ${counts[active.k][active.b]} samples with distance in [${thresholds[active.b].toPrecision(4)}, ${thresholds[active.b + 1].toPrecision(4)})` : '\u00a0';
   const rows = thresholds.slice(0, -1).map((t, b) => [t, thresholds[b + 1], ...counts.map((r) => r[b])]);
@@ -60,21 +62,23 @@ export function DistanceHistogram({ x, c, classes, band, positive }: { x: readon
           e.preventDefault();
           const k0 = active?.k ?? 0;
           const b0 = active?.b ?? 0;
-          setActive({ k: (k0 + dir[0] + classes.length) % classes.length, b: Math.min(counts[0].length - 1, Math.max(0, b0 + dir[1])) });
+          const row = Math.max(0, visible.indexOf(k0));
+          setActive({ k: visible[(row + dir[0] + visible.length) % visible.length] ?? 0, b: Math.min(counts[0].length - 1, Math.max(0, b0 + dir[1])) });
         }}
-        onFocus={() => setActive((a) => a ?? { k: 0, b: 0 })}
+        onFocus={() => setActive((a) => a ?? { k: visible[0] ?? 0, b: 0 })}
         onMouseLeave={() => setActive(null)}
       >
         {band !== null ? (
           <g>
-            <rect x={sx(-band)} y={M.top} width={sx(band) - sx(-band)} height={ROW * classes.length} fill="#f0e442" fillOpacity={0.25} />
+            <rect x={sx(-band)} y={M.top} width={sx(band) - sx(-band)} height={ROW * Math.max(1, visible.length)} fill="#f0e442" fillOpacity={0.25} />
             <line x1={sx(-band)} x2={sx(-band)} y1={M.top} y2={H - M.bottom} stroke="#1d232b" strokeDasharray="4 3" />
             <line x1={sx(band)} x2={sx(band)} y1={M.top} y2={H - M.bottom} stroke="#1d232b" strokeDasharray="4 3" />
           </g>
         ) : null}
         <line x1={sx(0)} x2={sx(0)} y1={M.top} y2={H - M.bottom} stroke="#1d232b" strokeWidth={1.5} />
-        {classes.map((name, k) => {
-          const top = M.top + ROW * k;
+        {visible.map((k, row) => {
+          const name = classes[k];
+          const top = M.top + ROW * row;
           const sy = scaleLinear().domain([0, maxCount]).range([top + ROW - 6, top + 8]);
           const { colour, shape } = classStyle(k);
           return (
@@ -112,7 +116,10 @@ export function DistanceHistogram({ x, c, classes, band, positive }: { x: readon
         </text>
       </svg>
       <p id={`${id}-desc`} className="text-xs text-slate-700">
-        The solid line is the hyperplane; the shaded band between the dashed lines is the margin ({band !== null ? `±${band.toPrecision(4)}` : 'not defined'}). Bars of the {positive} row left of 0, and bars of the other rows right of 0, are on the wrong side. Focus the chart and use the arrow keys to read each bar.
+        {band !== null
+          ? `The solid line is the hyperplane; the shaded band between the dashed lines is the margin (±${band.toPrecision(4)}). Bars of the ${positive} row left of 0, and bars of the other rows right of 0, are on the wrong side.`
+          : `The solid line is where the rule ${positive} changes sides; there is no margin band. Samples right of 0 are placed on the side of the first class, left of 0 on the other.`}{' '}
+        Focus the chart and use the arrow keys to read each bar.
       </p>
       <p aria-live="polite" className="min-h-5 text-sm tabular-nums">
         {readout}

@@ -253,3 +253,44 @@ describe('boundary data', () => {
     expect(r).toEqual({ kind: 'no-fit', projectName: 'Queue test', currentRevision: 0, pending: false });
   });
 });
+
+describe('a pair of classes (multi-class fit)', () => {
+  it('shows the two classes against f_A − f_B, at the distance computed from the stored model', async () => {
+    // three clusters on a triangle: a around (−2, 0), b around (2, 0), c around (0, 3)
+    const centres: Record<string, [number, number]> = { a: [-2, 0], b: [2, 0], c: [0, 3] };
+    const labelOf = (i: number) => ['a', 'b', 'c'][i % 3];
+    const feats = (i: number) => {
+      const [cx, cy] = centres[labelOf(i)];
+      return [cx + jitter(i, 3), cy + jitter(i, 4)];
+    };
+    const g = await createQueueFixture(db, { classes: ['a', 'b', 'c'], samples: 45, settings: { pivotCap: 0, folds: 3, kernel: 'linear', solver: 'smo', scale: 'none', C: 1 }, features: feats, labels: labelOf });
+    const project = await db.project.findUniqueOrThrow({ where: { id: g.projectId } });
+    const r0 = await db.revision.findUniqueOrThrow({ where: { projectId_number: { projectId: g.projectId, number: 0 } }, select: { id: true, number: true } });
+    await enqueueFitTx(db, project, r0);
+    expect((await processProject(db, g.projectId, { engine: inlineEngine }))?.status).toBe('done');
+    const r = await boundaryData(db, g.scope, g.projectId, { kind: 'pair', a: 'a', b: 'b' });
+    if (r?.kind !== 'ok') throw new Error('expected a fit');
+    const d = r.data;
+    expect(d.pair).toEqual(['a', 'b']);
+    expect(d.band).toBeNull();
+    expect(d.points).toHaveLength(30); // 15 a + 15 b, the c samples left out
+    expect(new Set(d.points.map((p) => d.classes[p.c]))).toEqual(new Set(['a', 'b']));
+    // independent path: features (scale none) → w_a·x + b_a − (w_b·x + b_b), divided by ‖w_a − w_b‖
+    const fit = await db.fit.findFirstOrThrow({ where: { projectId: g.projectId, status: 'done' } });
+    const model = decodeModel(fit.model as Uint8Array);
+    const A = model.boundaries.find((x) => x.positive === 'a');
+    const B = model.boundaries.find((x) => x.positive === 'b');
+    const wa = A?.w as Float64Array;
+    const wb = B?.w as Float64Array;
+    const norm = Math.hypot(wa[0] - wb[0], wa[1] - wb[1]);
+    const ext = new Map((await db.sample.findMany({ where: { projectId: g.projectId }, select: { id: true, externalId: true } })).map((s) => [s.id, Number(s.externalId.slice(1))]));
+    for (const p of d.points) {
+      const [x0, x1] = feats(ext.get(p.id) as number).map((v) => Math.fround(v));
+      const gx = wa[0] * x0 + wa[1] * x1 + (A?.b ?? 0) - (wb[0] * x0 + wb[1] * x1 + (B?.b ?? 0));
+      expect(p.x).toBeCloseTo(gx / norm, 4);
+    }
+    // textbook fact: well-separated clusters — every a sample is scored above b by the a-vs-rest
+    // and b-vs-rest boundaries' difference, and vice versa, so nobody is on the wrong side
+    expect(d.points.filter((p) => p.f & 1)).toHaveLength(0);
+  });
+});

@@ -49,6 +49,8 @@ export interface BoundaryData {
   readonly classes: readonly string[];
   readonly boundaries: readonly { readonly index: number; readonly name: string; readonly positive: string }[];
   readonly boundary: number;
+  /** [A, B] when a pair of classes is shown (A's score minus B's); null for one-vs-rest */
+  readonly pair: readonly [string, string] | null;
   readonly positive: string;
   readonly kernel: string;
   readonly marginWidth: number | null;
@@ -64,8 +66,18 @@ export type BoundaryResult =
   | { readonly kind: 'ok'; readonly data: BoundaryData }
   | { readonly kind: 'no-fit'; readonly projectName: string; readonly currentRevision: number; readonly pending: boolean };
 
+/**
+ * Which boundary to show: one-vs-rest boundary k, or a pair of classes (multi-class fits). A pair
+ * (A, B) shows only the samples labelled A or B against the rule "A's score beats B's":
+ * g(x) = f_A(x) − f_B(x), a linear function with weights w_A − w_B for linear fits, so the signed
+ * distance is g(x)/‖w_A − w_B‖. It was not trained as a margin classifier, so it has no margin
+ * band; a sample is "wrong side" when the other class of the pair outscores its own. Kernel fits
+ * show g(x) itself (no input-space weights).
+ */
+export type BoundaryChoice = { readonly kind: 'ovr'; readonly index: number } | { readonly kind: 'pair'; readonly a: string; readonly b: string };
+
 /** null when the project is not the caller's team's. */
-export async function boundaryData(client: Db, scope: TeamScope, projectId: string, boundaryIndex = 0): Promise<BoundaryResult | null> {
+export async function boundaryData(client: Db, scope: TeamScope, projectId: string, choice: BoundaryChoice | number = 0): Promise<BoundaryResult | null> {
   const project = await scopedProject(client, scope.teamId, projectId);
   if (!project) return null;
   const fit = await client.fit.findFirst({
@@ -79,8 +91,15 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
   }
   const model = decodeModel(fit.model);
   const metrics = parseJson(fit.metrics);
-  const k = Math.min(Math.max(0, Math.trunc(boundaryIndex)), model.boundaries.length - 1);
+  const want: BoundaryChoice = typeof choice === 'number' ? { kind: 'ovr', index: choice } : choice;
+  const byPositive = (c: string) => model.boundaries.findIndex((x) => x.positive === c);
+  const pair =
+    want.kind === 'pair' && model.boundaries.length > 2 && want.a !== want.b && byPositive(want.a) >= 0 && byPositive(want.b) >= 0
+      ? { a: byPositive(want.a), b: byPositive(want.b) }
+      : null;
+  const k = pair ? pair.a : Math.min(Math.max(0, Math.trunc(want.kind === 'ovr' ? want.index : 0)), model.boundaries.length - 1);
   const b = model.boundaries[k];
+  const rival = pair ? model.boundaries[pair.b] : null;
   const cols = model.preprocessor.cols;
   const [samples, standings, labels] = await Promise.all([
     client.sample.findMany({ where: { projectId }, orderBy: { externalId: 'asc' }, select: { id: true, externalId: true, features: true } }),
@@ -88,7 +107,9 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
     labelsAtRevision(client, projectId, fit.revisionNumber),
   ]);
   const standingOf = new Map(standings.map((s) => [s.sampleId, s] as const));
-  const kept = samples.filter((s) => standingOf.has(s.id) && labels.has(s.id) && s.features.byteLength === cols * 4);
+  const kept = samples.filter(
+    (s) => standingOf.has(s.id) && labels.has(s.id) && s.features.byteLength === cols * 4 && (!rival || labels.get(s.id) === b.positive || labels.get(s.id) === rival.positive),
+  );
   const raw = new Float64Array(kept.length * cols);
   kept.forEach((s, i) => decodeFeaturesInto(s.features, raw, i * cols));
   const p = model.header.preprocessor;
@@ -104,10 +125,26 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
   const decision = new Float64Array(kept.length);
   kept.forEach((s, i) => {
     const d = unpackDetail(standingOf.get(s.id)?.detail ?? null);
-    decision[i] = d ? (d.decision[k] ?? 0) : 0;
+    decision[i] = d ? (d.decision[k] ?? 0) - (pair ? (d.decision[pair.b] ?? 0) : 0) : 0;
   });
-  const w = b.w ? Float64Array.from(b.w.subarray(0, cols)) : null;
-  const picture = boundaryPicture(X, decision, b.wNorm, w);
+  let w = b.w ? Float64Array.from(b.w.subarray(0, cols)) : null;
+  let wNorm = b.wNorm;
+  if (rival) {
+    if (w && rival.w) {
+      const rw = rival.w;
+      w = w.map((v, j) => v - rw[j]);
+      // The bias column of a DCD fit (if any) is not part of the input-space direction; the norm
+      // of the pairwise rule uses the same components as the single boundaries' stored ‖w‖.
+      const full = b.w as Float64Array;
+      let s2 = 0;
+      for (let j = 0; j < Math.min(full.length, rw.length); j++) s2 += (full[j] - rw[j]) ** 2;
+      wNorm = full.length > cols ? Math.sqrt(s2) : Math.hypot(...w);
+    } else {
+      w = null;
+      wNorm = NaN;
+    }
+  }
+  const picture = boundaryPicture(X, decision, wNorm, w);
   // Project class order (ProjectClass.position), as on every other screen, so a class keeps its colour and shape.
   const classes = [...project.classes.map((c) => c.name)];
   for (const c of model.header.classes) if (!classes.includes(c)) classes.push(c);
@@ -119,8 +156,8 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
     const m = y * decision[i];
     let f = 0;
     if (m < 0) f |= PF_WRONG_SIDE;
-    else if (m < 1 - 1e-3) f |= PF_INSIDE_MARGIN;
-    if (Math.abs(decision[i]) <= nearBand) f |= PF_NEAR;
+    else if (!rival && m < 1 - 1e-3) f |= PF_INSIDE_MARGIN;
+    if (!rival && Math.abs(decision[i]) <= nearBand) f |= PF_NEAR;
     if ((standingOf.get(s.id)?.flags ?? '').split(',').includes('pivot')) f |= PF_PIVOT;
     return { id: s.id, e: s.externalId, c: classes.indexOf(label), x: picture.x[i], y: picture.y[i], d: decision[i], f };
   });
@@ -134,10 +171,11 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
       classes,
       boundaries: model.boundaries.map((x, i) => ({ index: i, name: x.name, positive: x.positive })),
       boundary: k,
+      pair: rival ? [b.positive, rival.positive] : null,
       positive: b.positive,
       kernel: model.header.kernel.type,
-      marginWidth: b.marginWidth,
-      band: picture.band,
+      marginWidth: rival ? null : b.marginWidth,
+      band: rival ? null : picture.band,
       vertical: picture.vertical,
       verticalShare: picture.direction.share,
       points,

@@ -13,5 +13,5 @@
 export { revisionTimeline, settingsDiff, settingsSummary, verdictOf, type BoundaryMetrics, type RevisionRow, type Timeline, type FitSettingsSummary, type HardMarginVerdict } from './timeline';
 export { revisionDiff, DIFF_LIMIT, type DiffEntry, type DiffVote, type RevisionDiff } from './diff';
 export { agreementSummary, type AgreementSummary, type PairAgreement, type ThroughputRow } from './agreement';
-export { boundaryData, sampleDetail, PF_INSIDE_MARGIN, PF_NEAR, PF_PIVOT, PF_WRONG_SIDE, type BoundaryData, type BoundaryPoint, type BoundaryResult, type SampleDetail } from './boundary';
+export { boundaryData, sampleDetail, type BoundaryChoice, PF_INSIDE_MARGIN, PF_NEAR, PF_PIVOT, PF_WRONG_SIDE, type BoundaryData, type BoundaryPoint, type BoundaryResult, type SampleDetail } from './boundary';
 export { labelsAtRevision } from './labels';

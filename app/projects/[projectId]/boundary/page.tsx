@@ -29,8 +29,11 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
   const client = db();
   const k = /^\d{1,3}$/.test(one(sp.boundary) ?? '') ? Number(one(sp.boundary)) : 0;
   const sampleId = one(sp.sample);
+  const pairA = one(sp.a);
+  const pairB = one(sp.b);
+  const choice = pairA && pairB && pairA.length <= 200 && pairB.length <= 200 ? { kind: 'pair' as const, a: pairA, b: pairB } : { kind: 'ovr' as const, index: k };
   const [result, sample] = await Promise.all([
-    boundaryData(client, access.scope, projectId, k),
+    boundaryData(client, access.scope, projectId, choice),
     sampleId && IdSchema.safeParse(sampleId).success ? sampleDetail(client, access.scope, projectId, sampleId) : Promise.resolve(null),
   ]);
   if (!result) notFound();
@@ -55,7 +58,10 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
     );
   }
   const d = result.data;
-  const base = `/projects/${projectId}/boundary?boundary=${d.boundary}`;
+  const base = d.pair
+    ? `/projects/${projectId}/boundary?a=${encodeURIComponent(d.pair[0])}&b=${encodeURIComponent(d.pair[1])}`
+    : `/projects/${projectId}/boundary?boundary=${d.boundary}`;
+  const sideLabel = d.pair ? `${d.pair[0]} over ${d.pair[1]}` : d.positive;
   const flagged = d.points.filter((p) => (p.f & 3) !== 0).sort((a, b) => Math.abs(b.x) - Math.abs(a.x));
   const verticalWords =
     d.vertical === 'orthogonal-to-w'
@@ -67,7 +73,7 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
       {sample ? <SampleDetailPanel sample={sample} closeHref={base} /> : null}
       <section aria-labelledby="chooser-heading" className="space-y-2">
         <h2 id="chooser-heading" className="text-lg font-semibold" data-testid="fit-revision" data-value={d.revision}>
-          Boundary of the fit of revision {d.revision}
+          {d.pair ? `${d.pair[0]} against ${d.pair[1]}, fit of revision ${d.revision}` : `Boundary of the fit of revision ${d.revision}`}
           {d.revision !== d.currentRevision ? <span className="text-sm font-normal"> (the current revision {d.currentRevision} is not fitted yet)</span> : null}
         </h2>
         {d.boundaries.length > 1 ? (
@@ -77,8 +83,8 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
                 <li key={b.index}>
                   <Link
                     href={`/projects/${projectId}/boundary?boundary=${b.index}`}
-                    aria-current={b.index === d.boundary ? 'page' : undefined}
-                    className={`inline-flex items-center gap-1 rounded border px-2 py-1 ${b.index === d.boundary ? 'border-ink border-2 font-semibold' : 'border-slate-400 bg-white'}`}
+                    aria-current={!d.pair && b.index === d.boundary ? 'page' : undefined}
+                    className={`inline-flex items-center gap-1 rounded border px-2 py-1 ${!d.pair && b.index === d.boundary ? 'border-ink border-2 font-semibold' : 'border-slate-400 bg-white'}`}
                   >
                     <ClassShape index={d.classes.indexOf(b.positive)} /> {b.positive} vs the rest
                   </Link>
@@ -86,6 +92,38 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
               ))}
             </ul>
           </nav>
+        ) : null}
+        {d.boundaries.length > 2 ? (
+          <form method="get" className="flex flex-wrap items-end gap-2 text-sm" aria-label="Show a pair of classes">
+            <label className="flex items-center gap-1">
+              Pair: class
+              <select name="a" defaultValue={d.pair?.[0] ?? d.boundaries[0].positive} className="rounded border border-slate-400 bg-white px-2 py-1">
+                {d.boundaries.map((b) => (
+                  <option key={b.index} value={b.positive}>
+                    {b.positive}
+                  </option>
+                ))}
+              </select>
+            </label>
+            <label className="flex items-center gap-1">
+              against
+              <select name="b" defaultValue={d.pair?.[1] ?? d.boundaries[1].positive} className="rounded border border-slate-400 bg-white px-2 py-1">
+                {d.boundaries.map((b) => (
+                  <option key={b.index} value={b.positive}>
+                    {b.positive}
+                  </option>
+                ))}
+              </select>
+            </label>
+            <button type="submit" className="rounded bg-ink px-3 py-1 text-white">
+              Show the pair
+            </button>
+          </form>
+        ) : null}
+        {d.pair ? (
+          <p className="max-w-3xl text-sm" data-testid="pair-note">
+            Showing the samples labelled {d.pair[0]} or {d.pair[1]} against the rule &ldquo;{d.pair[0]}&apos;s score beats {d.pair[1]}&apos;s&rdquo; (the difference of their one-vs-rest scores). This rule was not trained as a margin, so there is no margin band; a sample is on the wrong side when the other class outscores its own.
+          </p>
         ) : null}
         <dl className="grid max-w-3xl grid-cols-2 gap-3 text-sm sm:grid-cols-4">
           <div className="rounded border border-slate-300 bg-white p-2">
@@ -113,8 +151,8 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
           Kernel {d.kernel}. Labels as of revision {d.revision}. Vertical axis of the picture: {verticalWords}.
         </p>
       </section>
-      <DistanceHistogram x={d.points.map((p) => p.x)} c={d.points.map((p) => p.c)} classes={d.classes} band={d.band} positive={d.positive} />
-      <BoundaryScatter points={d.points} classes={d.classes} band={d.band} positive={d.positive} vertical={d.vertical === 'orthogonal-to-w' ? 'principal direction ⟂ w' : 'principal direction of the inputs'} sampleHref={`${base}&sample=`} />
+      <DistanceHistogram x={d.points.map((p) => p.x)} c={d.points.map((p) => p.c)} classes={d.classes} band={d.band} positive={sideLabel} />
+      <BoundaryScatter points={d.points} classes={d.classes} band={d.band} positive={sideLabel} vertical={d.vertical === 'orthogonal-to-w' ? 'principal direction ⟂ w' : 'principal direction of the inputs'} sampleHref={`${base}&sample=`} />
       <section aria-labelledby="flagged-heading" className="space-y-2">
         <h2 id="flagged-heading" className="text-lg font-semibold">
           Outlined samples, farthest on the wrong side first ({flagged.length.toLocaleString('en-US')})
