@@ -7,6 +7,7 @@ import { mintTeamScope } from '@/lib/server/authz/scope';
 import type { Db } from '@/lib/server/db';
 import { enqueueFitTx } from '@/lib/server/fits/enqueue';
 import { inlineEngine } from '@/lib/server/fits/engine';
+import { auditReport } from '@/lib/server/export/report';
 import { decodeModel } from '@/lib/server/fits/model-codec';
 import { processProject, resetFitMemory } from '@/lib/server/fits/run-fit';
 import { agreementSummary, boundaryData, labelsAtRevision, revisionDiff, revisionTimeline, sampleDetail } from '@/lib/server/revisions';
@@ -202,6 +203,13 @@ describe('agreement', () => {
     // hand-worked: agreeing vote pairs 3 + 1 + 1 of 5 + 1 + 1
     expect(a?.overallPercent).toBeCloseTo(5 / 7, 12);
     expect(a?.votePairs).toBe(7);
+  });
+
+  it('the audit report carries kappa per reviewer pair', async () => {
+    const report = await auditReport(f.scope, f.projectId, { client: db });
+    // the same hand-worked figures as above: κ = 1/6 over 5 shared items, 60 % agreement
+    expect(report.reviewerPairs.find((p) => p.a === 'Reviewer 1' && p.b === 'Reviewer 2')).toEqual({ a: 'Reviewer 1', b: 'Reviewer 2', items: 5, percentAgreement: 60, cohensKappa: expect.closeTo(1 / 6, 12) });
+    expect(report.reviewerPairs).toHaveLength(3);
   });
 
   it('original vs current confusion and votes per reviewer per day', async () => {

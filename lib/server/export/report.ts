@@ -4,12 +4,14 @@
  *
  * Agreement: for every review item with at least two votes, the first two votes agree when
  * both keep, or both relabel to the same class. Percent agreement = agreeing pairs / pairs ×
- * 100. Cohen's kappa needs a fixed pair of raters and is reported by the revisions module when
- * present; here it is null.
+ * 100. Cohen's kappa needs a fixed pair of raters: `agreement.cohensKappa` stays null and
+ * `reviewerPairs` gives kappa for each pair of reviewers over the items both voted on (from
+ * lib/server/revisions/agreement.ts: a vote's rating is the label the reviewer says is right).
  */
 import { notFound } from '../authz/errors';
 import type { TeamScope } from '../authz/scope';
 import { db, type Db } from '../db';
+import { agreementSummary } from '../revisions/agreement';
 
 export const REPORT_FORMAT_VERSION = 1;
 
@@ -66,6 +68,8 @@ export interface AuditReport {
   };
   revisions: RevisionReport[];
   agreement: AgreementReport;
+  /** Cohen's kappa and percent agreement (0–100) per pair of reviewers, over the items both voted on. */
+  reviewerPairs: { a: string; b: string; items: number; percentAgreement: number | null; cohensKappa: number | null }[];
 }
 
 function parseJson(text: string | null): unknown {
@@ -191,5 +195,12 @@ export async function auditReport(scope: TeamScope, projectId: string, options: 
     },
     revisions,
     agreement,
+    reviewerPairs: ((await agreementSummary(client, scope, projectId))?.pairs ?? []).map((p) => ({
+      a: p.a,
+      b: p.b,
+      items: p.items,
+      percentAgreement: p.percent === null ? null : Math.round(p.percent * 10000) / 100,
+      cohensKappa: p.kappa,
+    })),
   };
 }
