@@ -40,7 +40,7 @@ const outlined = (f: number) => (f & 3) !== 0;
  * a click (or Enter) opens the sample. Keyboard: ←/→ step through the points by signed distance,
  * F jumps to the next outlined point, Enter opens it, Esc clears.
  */
-export function BoundaryScatter({ points, classes, band, positive, vertical, sampleHref }: { points: readonly ScatterPoint[]; classes: readonly string[]; band: number | null; positive: string; vertical: string; sampleHref: string }) {
+export function BoundaryScatter({ points, classes, band, positive, vertical, sampleHref, total }: { points: readonly ScatterPoint[]; classes: readonly string[]; band: number | null; positive: string; vertical: string; sampleHref: string; total: number }) {
   const canvas = useRef<HTMLCanvasElement>(null);
   const router = useRouter();
   const id = useId();
@@ -180,7 +180,7 @@ export function BoundaryScatter({ points, classes, band, positive, vertical, sam
           style={{ aspectRatio: `${W} / ${H}` }}
           role="img"
           tabIndex={0}
-          aria-label={`Scatter of ${points.length} samples: signed distance to the ${positive} boundary across, ${vertical} up; ${flaggedCount} outlined as wrong side or inside the margin`}
+          aria-label={`Scatter of ${points.length}${points.length < total ? ` of ${total}` : ''} samples: signed distance to the ${positive} boundary across, ${vertical} up; ${flaggedCount} outlined as wrong side or inside the margin`}
           aria-describedby={`${id}-desc`}
           onMouseMove={(e) => {
             const [px, py] = toLocal(e);
@@ -252,6 +252,11 @@ export function BoundaryScatter({ points, classes, band, positive, vertical, sam
           dark outline: wrong side or inside the margin ({flaggedCount})
         </li>
       </ul>
+      {points.length < total ? (
+        <p className="text-sm">
+          Showing {points.length.toLocaleString('en-US')} of {total.toLocaleString('en-US')} samples: the outlined ones first, the rest evenly spaced. The histogram above counts every sample.
+        </p>
+      ) : null}
       <p id={`${id}-desc`} className="text-xs text-slate-700">
         The solid line is the hyperplane, the shaded band the margin. Hover a point for its values, click to open it. With the keyboard: focus the picture, ←/→ step through the samples by distance, F jumps to the next outlined sample, Enter opens it.
       </p>

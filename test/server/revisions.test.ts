@@ -255,6 +255,23 @@ describe('boundary data', () => {
     expect(d.points.every((p) => (p.f & 1) === 0)).toBe(true);
   });
 
+  it('large projects: the picture gets a subset (outlined samples first), the histogram every sample', async () => {
+    const full = await boundaryData(db, f.scope, f.projectId, 0);
+    const cut = await boundaryData(db, f.scope, f.projectId, 0, { maxPicturePoints: 20 });
+    if (full?.kind !== 'ok' || cut?.kind !== 'ok') throw new Error('expected a fit');
+    expect(cut.data.points).toHaveLength(20);
+    expect(cut.data.total).toBe(80);
+    expect(cut.data.histogram.x).toHaveLength(80);
+    expect(cut.data.histogram.x).toEqual(full.data.histogram.x);
+    const outlined = full.data.points.filter((p) => (p.f & 3) !== 0).map((p) => p.id);
+    expect(cut.data.outlined).toBe(outlined.length);
+    const shown = new Set(cut.data.points.map((p) => p.id));
+    for (const id of outlined.slice(0, 10)) expect(shown.has(id)).toBe(true);
+    // the same sample has the same signed distance in the subset
+    const xOf = new Map(full.data.points.map((p) => [p.id, p.x]));
+    for (const p of cut.data.points) expect(p.x).toBeCloseTo(xOf.get(p.id) as number, 12);
+  });
+
   it('no fit: says so', async () => {
     const g = await createQueueFixture(db, { samples: 6 });
     const r = await boundaryData(db, g.scope, g.projectId, 0);

@@ -59,8 +59,23 @@ export interface BoundaryData {
   readonly vertical: 'orthogonal-to-w' | 'input-pca';
   /** share of the (w-removed) variance along the vertical direction */
   readonly verticalShare: number;
+  /** samples of this boundary (all of them are in the histogram) */
+  readonly total: number;
+  readonly wrongSide: number;
+  readonly insideMargin: number;
+  /** wrong side or inside the margin */
+  readonly outlined: number;
+  /** signed distance and class index of every sample */
+  readonly histogram: { readonly x: readonly number[]; readonly c: readonly number[] };
+  /** outlined samples, farthest from the boundary first (at most FLAGGED_LIMIT; y is 0) */
+  readonly flagged: readonly BoundaryPoint[];
+  /** the picture's points: every sample up to MAX_PICTURE_POINTS, else a subset (see boundaryData) */
   readonly points: readonly BoundaryPoint[];
 }
+
+/** Most points sent to the canvas picture (the histogram always counts every sample). */
+export const MAX_PICTURE_POINTS = 20_000;
+export const FLAGGED_LIMIT = 200;
 
 export type BoundaryResult =
   | { readonly kind: 'ok'; readonly data: BoundaryData }
@@ -77,7 +92,13 @@ export type BoundaryResult =
 export type BoundaryChoice = { readonly kind: 'ovr'; readonly index: number } | { readonly kind: 'pair'; readonly a: string; readonly b: string };
 
 /** null when the project is not the caller's team's. */
-export async function boundaryData(client: Db, scope: TeamScope, projectId: string, choice: BoundaryChoice | number = 0): Promise<BoundaryResult | null> {
+export async function boundaryData(
+  client: Db,
+  scope: TeamScope,
+  projectId: string,
+  choice: BoundaryChoice | number = 0,
+  options: { maxPicturePoints?: number } = {},
+): Promise<BoundaryResult | null> {
   const project = await scopedProject(client, scope.teamId, projectId);
   if (!project) return null;
   const fit = await client.fit.findFirst({
@@ -102,16 +123,78 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
   const rival = pair ? model.boundaries[pair.b] : null;
   const cols = model.preprocessor.cols;
   const [samples, standings, labels] = await Promise.all([
-    client.sample.findMany({ where: { projectId }, orderBy: { externalId: 'asc' }, select: { id: true, externalId: true, features: true } }),
+    client.sample.findMany({ where: { projectId }, orderBy: { externalId: 'asc' }, select: { id: true, externalId: true } }),
     client.standing.findMany({ where: { fitId: fit.id }, select: { sampleId: true, detail: true, flags: true } }),
     labelsAtRevision(client, projectId, fit.revisionNumber),
   ]);
   const standingOf = new Map(standings.map((s) => [s.sampleId, s] as const));
-  const kept = samples.filter(
-    (s) => standingOf.has(s.id) && labels.has(s.id) && s.features.byteLength === cols * 4 && (!rival || labels.get(s.id) === b.positive || labels.get(s.id) === rival.positive),
-  );
-  const raw = new Float64Array(kept.length * cols);
-  kept.forEach((s, i) => decodeFeaturesInto(s.features, raw, i * cols));
+  const kept = samples.filter((s) => standingOf.has(s.id) && labels.has(s.id) && (!rival || labels.get(s.id) === b.positive || labels.get(s.id) === rival.positive));
+  const n = kept.length;
+  const decision = new Float64Array(n);
+  kept.forEach((s, i) => {
+    const d = unpackDetail(standingOf.get(s.id)?.detail ?? null);
+    decision[i] = d ? (d.decision[k] ?? 0) - (pair ? (d.decision[pair.b] ?? 0) : 0) : 0;
+  });
+  let w = b.w ? Float64Array.from(b.w.subarray(0, cols)) : null;
+  let wNorm = b.wNorm;
+  if (rival) {
+    if (w && rival.w) {
+      // ‖w_A − w_B‖ over the full stored vectors (the same components as each boundary's ‖w‖)
+      const full = b.w as Float64Array;
+      const rw = rival.w;
+      w = w.map((v, j) => v - rw[j]);
+      let s2 = 0;
+      for (let j = 0; j < Math.min(full.length, rw.length); j++) s2 += (full[j] - rw[j]) ** 2;
+      wNorm = Math.sqrt(s2);
+    } else {
+      w = null;
+      wNorm = NaN;
+    }
+  }
+  const usable = Number.isFinite(wNorm) && wNorm > 0;
+  // Project class order (ProjectClass.position), as on every other screen, so a class keeps its colour and shape.
+  const classes = [...project.classes.map((c) => c.name)];
+  for (const c of model.header.classes) if (!classes.includes(c)) classes.push(c);
+  const nearBand = typeof metrics.nearBand === 'number' ? metrics.nearBand : 0.5;
+  const cls = new Int32Array(n);
+  const flags = new Int32Array(n);
+  const dist = new Float64Array(n);
+  kept.forEach((s, i) => {
+    const label = labels.get(s.id) as string;
+    if (!classes.includes(label)) classes.push(label);
+    cls[i] = classes.indexOf(label);
+    const m = (label === b.positive ? 1 : -1) * decision[i];
+    let f = 0;
+    if (m < 0) f |= PF_WRONG_SIDE;
+    else if (!rival && m < 1 - 1e-3) f |= PF_INSIDE_MARGIN;
+    if (!rival && Math.abs(decision[i]) <= nearBand) f |= PF_NEAR;
+    if ((standingOf.get(s.id)?.flags ?? '').split(',').includes('pivot')) f |= PF_PIVOT;
+    flags[i] = f;
+    dist[i] = usable ? decision[i] / wNorm : decision[i];
+  });
+
+  // The picture: every sample up to `maxPicturePoints`; above that the outlined samples first (up
+  // to half the budget), the rest evenly spaced. Features are read only for those rows.
+  const cap = Math.max(1, options.maxPicturePoints ?? MAX_PICTURE_POINTS);
+  let chosen: number[];
+  if (n <= cap) chosen = Array.from({ length: n }, (_, i) => i);
+  else {
+    const outlined = Array.from({ length: n }, (_, i) => i).filter((i) => (flags[i] & 3) !== 0).slice(0, Math.floor(cap / 2));
+    const taken = new Set(outlined);
+    const rest = Array.from({ length: n }, (_, i) => i).filter((i) => !taken.has(i));
+    const room = cap - outlined.length;
+    const spaced: number[] = [];
+    for (let q = 0; q < room && rest.length > 0; q++) spaced.push(rest[Math.floor((q * rest.length) / room)]);
+    chosen = [...outlined, ...spaced].sort((x, y) => x - y);
+  }
+  const featureOf = new Map<string, Uint8Array>();
+  for (let start = 0; start < chosen.length; start += 500) {
+    const ids = chosen.slice(start, start + 500).map((i) => kept[i].id);
+    for (const r of await client.sample.findMany({ where: { id: { in: ids } }, select: { id: true, features: true } })) featureOf.set(r.id, r.features);
+  }
+  const rows = chosen.filter((i) => featureOf.get(kept[i].id)?.byteLength === cols * 4);
+  const raw = new Float64Array(rows.length * cols);
+  rows.forEach((i, r) => decodeFeaturesInto(featureOf.get(kept[i].id) as Uint8Array, raw, r * cols));
   const p = model.header.preprocessor;
   const pre: Preprocessor = {
     kind: p.kind as ScaleKind,
@@ -121,46 +204,20 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
     zeroVarianceColumns: p.zeroVarianceColumns,
     zeroNormRows: p.zeroNormRows,
   };
-  const X = applyPreprocessor(pre, { data: raw, rows: kept.length, cols });
-  const decision = new Float64Array(kept.length);
-  kept.forEach((s, i) => {
-    const d = unpackDetail(standingOf.get(s.id)?.detail ?? null);
-    decision[i] = d ? (d.decision[k] ?? 0) - (pair ? (d.decision[pair.b] ?? 0) : 0) : 0;
-  });
-  let w = b.w ? Float64Array.from(b.w.subarray(0, cols)) : null;
-  let wNorm = b.wNorm;
-  if (rival) {
-    if (w && rival.w) {
-      const rw = rival.w;
-      w = w.map((v, j) => v - rw[j]);
-      // The bias column of a DCD fit (if any) is not part of the input-space direction; the norm
-      // of the pairwise rule uses the same components as the single boundaries' stored ‖w‖.
-      const full = b.w as Float64Array;
-      let s2 = 0;
-      for (let j = 0; j < Math.min(full.length, rw.length); j++) s2 += (full[j] - rw[j]) ** 2;
-      wNorm = full.length > cols ? Math.sqrt(s2) : Math.hypot(...w);
-    } else {
-      w = null;
-      wNorm = NaN;
-    }
+  const X = applyPreprocessor(pre, { data: raw, rows: rows.length, cols });
+  const picture = boundaryPicture(X, rows.map((i) => decision[i]), wNorm, w);
+  const points: BoundaryPoint[] = rows.map((i, r) => ({ id: kept[i].id, e: kept[i].externalId, c: cls[i], x: picture.x[r], y: picture.y[r], d: decision[i], f: flags[i] }));
+  const outlinedAll = Array.from({ length: n }, (_, i) => i).filter((i) => (flags[i] & 3) !== 0);
+  const flagged = outlinedAll
+    .sort((x, y) => Math.abs(dist[y]) - Math.abs(dist[x]))
+    .slice(0, FLAGGED_LIMIT)
+    .map((i) => ({ id: kept[i].id, e: kept[i].externalId, c: cls[i], x: dist[i], y: 0, d: decision[i], f: flags[i] }));
+  let wrongSide = 0;
+  let insideMargin = 0;
+  for (let i = 0; i < n; i++) {
+    if (flags[i] & PF_WRONG_SIDE) wrongSide++;
+    if (flags[i] & PF_INSIDE_MARGIN) insideMargin++;
   }
-  const picture = boundaryPicture(X, decision, wNorm, w);
-  // Project class order (ProjectClass.position), as on every other screen, so a class keeps its colour and shape.
-  const classes = [...project.classes.map((c) => c.name)];
-  for (const c of model.header.classes) if (!classes.includes(c)) classes.push(c);
-  const nearBand = typeof metrics.nearBand === 'number' ? metrics.nearBand : 0.5;
-  const points: BoundaryPoint[] = kept.map((s, i) => {
-    const label = labels.get(s.id) as string;
-    if (!classes.includes(label)) classes.push(label);
-    const y = label === b.positive ? 1 : -1;
-    const m = y * decision[i];
-    let f = 0;
-    if (m < 0) f |= PF_WRONG_SIDE;
-    else if (!rival && m < 1 - 1e-3) f |= PF_INSIDE_MARGIN;
-    if (!rival && Math.abs(decision[i]) <= nearBand) f |= PF_NEAR;
-    if ((standingOf.get(s.id)?.flags ?? '').split(',').includes('pivot')) f |= PF_PIVOT;
-    return { id: s.id, e: s.externalId, c: classes.indexOf(label), x: picture.x[i], y: picture.y[i], d: decision[i], f };
-  });
   return {
     kind: 'ok',
     data: {
@@ -178,6 +235,12 @@ export async function boundaryData(client: Db, scope: TeamScope, projectId: stri
       band: rival ? null : picture.band,
       vertical: picture.vertical,
       verticalShare: picture.direction.share,
+      total: n,
+      wrongSide,
+      insideMargin,
+      outlined: outlinedAll.length,
+      histogram: { x: Array.from(dist), c: Array.from(cls) },
+      flagged,
       points,
     },
   };

@@ -62,7 +62,7 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
     ? `/projects/${projectId}/boundary?a=${encodeURIComponent(d.pair[0])}&b=${encodeURIComponent(d.pair[1])}`
     : `/projects/${projectId}/boundary?boundary=${d.boundary}`;
   const sideLabel = d.pair ? `${d.pair[0]} over ${d.pair[1]}` : d.positive;
-  const flagged = d.points.filter((p) => (p.f & 3) !== 0).sort((a, b) => Math.abs(b.x) - Math.abs(a.x));
+  const flagged = d.flagged;
   const verticalWords =
     d.vertical === 'orthogonal-to-w'
       ? `leading principal direction orthogonal to w (${(d.verticalShare * 100).toFixed(0)} % of the remaining variance)`
@@ -134,28 +134,28 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
           </div>
           <div className="rounded border border-slate-300 bg-white p-2">
             <dt className="text-slate-600">Samples</dt>
-            <dd className="text-lg font-semibold tabular-nums" data-testid="boundary-sample-count" data-value={d.points.length}>
-              {d.points.length.toLocaleString('en-US')}
+            <dd className="text-lg font-semibold tabular-nums" data-testid="boundary-sample-count" data-value={d.total}>
+              {d.total.toLocaleString('en-US')}
             </dd>
           </div>
           <div className="rounded border border-slate-300 bg-white p-2">
             <dt className="text-slate-600">Wrong side</dt>
-            <dd className="text-lg font-semibold tabular-nums">{d.points.filter((p) => p.f & 1).length.toLocaleString('en-US')}</dd>
+            <dd className="text-lg font-semibold tabular-nums">{d.wrongSide.toLocaleString('en-US')}</dd>
           </div>
           <div className="rounded border border-slate-300 bg-white p-2">
             <dt className="text-slate-600">Inside the margin</dt>
-            <dd className="text-lg font-semibold tabular-nums">{d.points.filter((p) => p.f & 2).length.toLocaleString('en-US')}</dd>
+            <dd className="text-lg font-semibold tabular-nums">{d.insideMargin.toLocaleString('en-US')}</dd>
           </div>
         </dl>
         <p className="text-xs text-slate-700">
           Kernel {d.kernel}. Labels as of revision {d.revision}. Vertical axis of the picture: {verticalWords}.
         </p>
       </section>
-      <DistanceHistogram x={d.points.map((p) => p.x)} c={d.points.map((p) => p.c)} classes={d.classes} band={d.band} positive={sideLabel} />
-      <BoundaryScatter points={d.points} classes={d.classes} band={d.band} positive={sideLabel} vertical={d.vertical === 'orthogonal-to-w' ? 'principal direction ⟂ w' : 'principal direction of the inputs'} sampleHref={`${base}&sample=`} />
+      <DistanceHistogram x={d.histogram.x} c={d.histogram.c} classes={d.classes} band={d.band} positive={sideLabel} />
+      <BoundaryScatter points={d.points} classes={d.classes} band={d.band} positive={sideLabel} vertical={d.vertical === 'orthogonal-to-w' ? 'principal direction ⟂ w' : 'principal direction of the inputs'} sampleHref={`${base}&sample=`} total={d.total} />
       <section aria-labelledby="flagged-heading" className="space-y-2">
         <h2 id="flagged-heading" className="text-lg font-semibold">
-          Outlined samples, farthest on the wrong side first ({flagged.length.toLocaleString('en-US')})
+          Outlined samples, farthest from the boundary first ({d.outlined.toLocaleString('en-US')}{d.outlined > flagged.length ? `, first ${flagged.length} listed` : ''})
         </h2>
         {flagged.length === 0 ? (
           <p className="text-sm">No sample is on the wrong side or inside the margin of this boundary.</p>
@@ -171,7 +171,7 @@ export default async function BoundaryPage({ params, searchParams }: { params: P
                 </tr>
               </thead>
               <tbody>
-                {flagged.slice(0, 200).map((p) => (
+                {flagged.map((p) => (
                   <tr key={p.id} className="border-b border-slate-200">
                     <th scope="row" className="px-2 py-1 text-left font-normal">
                       <Link className="underline" href={`${base}&sample=${encodeURIComponent(p.id)}`}>
