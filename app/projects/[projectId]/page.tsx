@@ -1,5 +1,6 @@
 import type { Metadata } from 'next';
 import { notFound } from 'next/navigation';
+import { ProjectNav } from '@/components/ProjectNav';
 import { requireResourceForPage } from '@/lib/server/authz/page';
 import { getProjectOverview } from '@/lib/server/dal/projects';
 
@@ -17,8 +18,9 @@ export default async function ProjectPage({ params }: { params: Promise<{ projec
   if (!project) notFound();
   return (
     <div className="space-y-6">
-      <div className="space-y-1">
+      <div className="space-y-3">
         <h1 className="text-2xl font-semibold">{project.name}</h1>
+        <ProjectNav projectId={projectId} active="overview" showSettings={access.membership.role === 'lead'} />
         {project.description ? <p className="max-w-3xl text-slate-700">{project.description}</p> : null}
       </div>
       <dl className="grid max-w-xl grid-cols-3 gap-4 text-sm">

@@ -1,10 +1,10 @@
 import type { Metadata } from 'next';
-import Link from 'next/link';
 import { notFound } from 'next/navigation';
 import { ExportPanel } from '@/components/data/ExportPanel';
 import { ImportHistory } from '@/components/data/ImportHistory';
 import { ImportPanel } from '@/components/data/ImportPanel';
 import { TokenPanel } from '@/components/data/TokenPanel';
+import { ProjectNav } from '@/components/ProjectNav';
 import { roleAtLeast } from '@/lib/domain';
 import { requireResourceForPage } from '@/lib/server/authz/page';
 import { loadDataScreen } from '@/lib/server/data-view';
@@ -25,23 +25,11 @@ export default async function DataPage({ params }: { params: Promise<{ projectId
   const { project } = screen;
   return (
     <div className="space-y-6">
-      <div className="flex flex-wrap items-baseline justify-between gap-2">
+      <div className="space-y-3">
         <h1 className="text-2xl font-semibold">
           Data <span className="text-base font-normal text-slate-600">· {project.name}</span>
         </h1>
-        <nav aria-label="Project" className="flex gap-4 text-sm">
-          <Link href={`/projects/${projectId}`} className="underline">
-            Overview
-          </Link>
-          <Link href={`/projects/${projectId}/queue`} className="underline">
-            Queue
-          </Link>
-          {isLead ? (
-            <Link href={`/projects/${projectId}/settings`} className="underline">
-              Settings
-            </Link>
-          ) : null}
-        </nav>
+        <ProjectNav projectId={projectId} active="data" showSettings={isLead} />
       </div>
       <p className="text-sm text-slate-700">
         {project.sampleCount.toLocaleString('en-US')} samples · {project.featureCount > 0 ? `${project.featureCount} features each` : 'no features yet'} ·{' '}
