@@ -4,7 +4,7 @@
 import { afterAll, beforeAll, beforeEach, describe, expect, it } from 'vitest';
 import type { Db } from '@/lib/server/db';
 import { enqueueFitTx } from '@/lib/server/fits/enqueue';
-import { inlineEngine, workerEngine, type EngineRunner } from '@/lib/server/fits/engine';
+import { inlineEngine, persistentWorkerEngine, workerEngine, type EngineRunner } from '@/lib/server/fits/engine';
 import { InProcessFitQueue } from '@/lib/server/fits/in-process';
 import { setFitJobQueue } from '@/lib/server/fits/jobs';
 import { processProject, resetFitMemory, runClaimedFit, type ProcessOutcome } from '@/lib/server/fits/run-fit';
@@ -238,11 +238,61 @@ describe('a fit', () => {
   });
 });
 
+describe('quick passes and engines', () => {
+  it('a large project gets a warm quick pass with held-out values carried from the last full pass (also after a restart), then a full pass', async () => {
+    const f = await twoClassProject({ applyEvery: 1 });
+    await queueFit(f, await revision0(f));
+    // quickPassCells 100 makes this 80 × 2 project count as "large".
+    const options = { engine: inlineEngine, quickPassCells: 100 };
+    const first = await processProject(db, f.projectId, options);
+    expect(first?.pass).toBe('full');
+    resetFitMemory(); // as after a restart: the carried values must come from the stored model
+    const s5 = await db.sample.findFirstOrThrow({ where: { projectId: f.projectId, externalId: 's0005' } });
+    const item = await db.queueItem.findFirstOrThrow({ where: { sampleId: s5.id } });
+    // s0005: odd index → the "b" cluster, planted label "a"
+    expect(s5.currentLabel).toBe('a');
+    await castVote({ db }, f.scope, f.reviewers[0], { projectId: f.projectId, itemId: item.id, decision: 'relabel', label: 'b' });
+    await castVote({ db }, f.scope, f.reviewers[1], { projectId: f.projectId, itemId: item.id, decision: 'relabel', label: 'b' });
+    const quick = await processProject(db, f.projectId, options);
+    expect([quick?.pass, quick?.status, quick?.revisionNumber]).toEqual(['quick', 'done', 1]);
+    const fit = await db.fit.findUniqueOrThrow({ where: { id: quick?.fitId } });
+    const metrics = JSON.parse(fit.metrics ?? '{}') as { oofCarriedFrom: string; warmStarted: boolean };
+    expect(metrics.oofCarriedFrom).toBe(first?.fitId);
+    expect(metrics.warmStarted).toBe(true);
+    // s0005 is now labelled "b", its own cluster: its carried held-out decision, re-read for the
+    // new label, puts it on the right side.
+    const st = await db.standing.findFirstOrThrow({ where: { fitId: fit.id, sampleId: s5.id } });
+    expect(st.oofMargin).toBeGreaterThan(0);
+    expect(st.margin).toBeGreaterThan(0);
+    // A full pass of the same revision was queued behind it, and it replaces the quick one.
+    const followUp = await db.fit.findFirstOrThrow({ where: { projectId: f.projectId, status: 'queued' } });
+    expect(followUp.revisionNumber).toBe(1);
+    expect((JSON.parse(followUp.settings) as { followUp: boolean }).followUp).toBe(true);
+    const full = await processProject(db, f.projectId, options);
+    expect([full?.pass, full?.status]).toEqual(['full', 'done']);
+  });
+
+  it('the worker-thread engines give the same standings as the inline engine', async () => {
+    const margins: number[][] = [];
+    for (const engine of [inlineEngine, workerEngine(), persistentWorkerEngine()]) {
+      // A project of its own per engine, so every fit is cold and the three are comparable bit for bit.
+      const f = await twoClassProject();
+      await queueFit(f, await revision0(f));
+      const out = await processProject(db, f.projectId, { engine });
+      expect(out?.status).toBe('done');
+      const rows = await db.standing.findMany({ where: { fitId: out?.fitId }, include: { sample: true } });
+      margins.push(rows.sort((a, b) => (a.sample.externalId < b.sample.externalId ? -1 : 1)).map((r) => r.margin));
+    }
+    expect(margins[1]).toEqual(margins[0]);
+    expect(margins[2]).toEqual(margins[0]);
+  });
+});
+
 describe('the in-process job queue', () => {
   it('runs queued fits in a worker thread, writes progress, and coalesces a burst', async () => {
     const f = await twoClassProject();
     const outcomes: ProcessOutcome[] = [];
-    const queue = new InProcessFitQueue(db, { engine: workerEngine(), pollMs: 60_000, onOutcome: (_p, o) => outcomes.push(o) });
+    const queue = new InProcessFitQueue(db, { engine: persistentWorkerEngine(), pollMs: 60_000, onOutcome: (_p, o) => outcomes.push(o) });
     setFitJobQueue(queue);
     // A burst of three revisions before the worker starts: one fit runs.
     const ids = [];

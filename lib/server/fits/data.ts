@@ -48,13 +48,34 @@ export function invalidateFeatureCache(projectId?: string): void {
 async function fingerprintOf(client: Db | DbTx, projectId: string): Promise<{ key: string; count: number }> {
   const [agg, dataRevision] = await Promise.all([
     client.sample.aggregate({ where: { projectId }, _count: { _all: true }, _max: { createdAt: true } }),
-    client.revision.findFirst({ where: { projectId, kind: { not: 'review' } }, orderBy: { number: 'desc' }, select: { number: true, createdAt: true } }),
+    dataRevisionKey(client, projectId),
   ]);
   const count = agg._count._all;
-  return { key: `${count}:${agg._max.createdAt?.getTime() ?? 0}:${dataRevision?.number ?? -1}:${dataRevision?.createdAt.getTime() ?? 0}`, count };
+  return { key: `${count}:${agg._max.createdAt?.getTime() ?? 0}:${dataRevision}`, count };
 }
 
 const PAGE = 5000;
+
+/** The cheap part of the fingerprint: the newest import / update revision of the project. */
+async function dataRevisionKey(client: Db | DbTx, projectId: string): Promise<string> {
+  const r = await client.revision.findFirst({ where: { projectId, kind: { not: 'review' } }, orderBy: { number: 'desc' }, select: { number: true, createdAt: true } });
+  return `${r?.number ?? -1}:${r?.createdAt.getTime() ?? 0}`;
+}
+
+/**
+ * The cached matrix for read paths that must be fast (nearest neighbours on every "next"): when a
+ * matrix is cached and the project's newest import/update revision is the one it was read at, it
+ * is used without counting the samples again (one indexed query instead of an aggregate over all
+ * samples). Fits use `featureMatrix`, which always checks the full fingerprint.
+ */
+export async function featureMatrixForReading(client: Db | DbTx, projectId: string): Promise<FeatureMatrix> {
+  const hit = cache().get(projectId);
+  if (hit && hit.matrix.fingerprint.endsWith(`:${await dataRevisionKey(client, projectId)}`)) {
+    hit.usedAt = Date.now();
+    return hit.matrix;
+  }
+  return featureMatrix(client, projectId);
+}
 
 export async function featureMatrix(client: Db | DbTx, projectId: string): Promise<FeatureMatrix> {
   const fp = await fingerprintOf(client, projectId);
@@ -101,7 +122,7 @@ export async function featureMatrix(client: Db | DbTx, projectId: string): Promi
     rows,
     cols,
     rowOf: new Map(sampleIds.map((id, i) => [id, i])),
-    fingerprint: rows === capacity ? fp.key : `partial:${Date.now()}`,
+    fingerprint: rows === capacity ? fp.key : `partial:${Date.now()}:-2:0`,
   };
   const bytes = rows * cols * 4;
   cache().set(projectId, { matrix, usedAt: Date.now(), bytes });
@@ -146,6 +167,42 @@ export async function labelsAtRevision(client: Db | DbTx, projectId: string, rev
   return labels;
 }
 
+type LabelCache = { revision: number; fingerprint: string; labels: Map<string, string> };
+const labelStore = globalThis as typeof globalThis & { __borderlineLabelCache?: Map<string, LabelCache> };
+const labelCache = (): Map<string, LabelCache> => (labelStore.__borderlineLabelCache ??= new Map());
+
+/**
+ * `labelsAtRevision` with a per-project memory: going forward from a remembered revision M to N
+ * only replays the LabelChange rows of revisions M+1 … N (a refit after a review batch reads a
+ * handful of rows instead of every sample). Anything else — an earlier revision, new samples or an
+ * import (a new fingerprint) — reads the labels afresh.
+ */
+export async function cachedLabelsAtRevision(client: Db | DbTx, projectId: string, revision: number, fingerprint: string): Promise<Map<string, string>> {
+  const hit = labelCache().get(projectId);
+  let labels: Map<string, string>;
+  if (hit && hit.fingerprint === fingerprint && hit.revision <= revision) {
+    labels = new Map(hit.labels);
+    if (revision > hit.revision) {
+      const changes = await client.labelChange.findMany({
+        where: { projectId, revisionNumber: { gt: hit.revision, lte: revision } },
+        orderBy: [{ revisionNumber: 'asc' }],
+        select: { sampleId: true, toLabel: true },
+      });
+      for (const c of changes) if (labels.has(c.sampleId)) labels.set(c.sampleId, c.toLabel);
+    }
+  } else {
+    labels = await labelsAtRevision(client, projectId, revision);
+  }
+  labelCache().set(projectId, { revision, fingerprint, labels });
+  // Callers only read the map; it is replaced, never changed, once cached.
+  return labels;
+}
+
+export function invalidateLabelCache(projectId?: string): void {
+  if (projectId === undefined) labelCache().clear();
+  else labelCache().delete(projectId);
+}
+
 export interface FitInput {
   readonly sampleIds: string[];
   readonly labels: string[];
@@ -155,9 +212,37 @@ export interface FitInput {
   readonly cols: number;
 }
 
-/** The engine's input for `revision`: rows in cache order, restricted to samples that existed then. */
-export async function fitInput(client: Db | DbTx, projectId: string, revision: number): Promise<{ input: FitInput; matrix: FeatureMatrix }> {
-  const [matrix, labels] = await Promise.all([featureMatrix(client, projectId), labelsAtRevision(client, projectId, revision)]);
+const normStore = globalThis as typeof globalThis & { __borderlineL2Cache?: Map<string, { fingerprint: string; X: Float32Array }> };
+const normCache = (): Map<string, { fingerprint: string; X: Float32Array }> => (normStore.__borderlineL2Cache ??= new Map());
+
+/**
+ * The matrix with every row divided by its Euclidean norm (all-zero rows stay zero), cached like the
+ * matrix itself. L2 normalisation is per row and learns nothing from the data, so normalising once
+ * here and fitting with scaling "none" gives the fit of scaling "l2" without renormalising (and
+ * without the engine's float64 copy of 4·n·d more bytes) on every refit.
+ */
+export function l2NormalizedRows(m: FeatureMatrix): Float32Array {
+  const hit = normCache().get(m.projectId);
+  if (hit && hit.fingerprint === m.fingerprint) return hit.X;
+  const { rows: n, cols: d, X } = m;
+  const out = new Float32Array(new SharedArrayBuffer(Math.max(4, n * d * 4)));
+  for (let i = 0; i < n; i++) {
+    let ss = 0;
+    for (let j = 0; j < d; j++) ss += X[i * d + j] * X[i * d + j];
+    const norm = Math.sqrt(ss);
+    if (norm > 0) for (let j = 0; j < d; j++) out[i * d + j] = X[i * d + j] / norm;
+  }
+  normCache().set(m.projectId, { fingerprint: m.fingerprint, X: out });
+  return out;
+}
+
+/**
+ * The engine's input for `revision`: rows in cache order (sample-id order), restricted to samples
+ * that existed then; with `l2`, rows already L2-normalised (see l2NormalizedRows).
+ */
+export async function fitInput(client: Db | DbTx, projectId: string, revision: number, options: { l2?: boolean } = {}): Promise<{ input: FitInput; matrix: FeatureMatrix }> {
+  const matrix = await featureMatrixForReading(client, projectId);
+  const labels = await cachedLabelsAtRevision(client, projectId, revision, matrix.fingerprint);
   const sampleIds: string[] = [];
   const lab: string[] = [];
   const rows: number[] = [];
@@ -168,11 +253,12 @@ export async function fitInput(client: Db | DbTx, projectId: string, revision: n
     lab.push(label);
     rows.push(r);
   }
-  let X = matrix.X;
+  const source = options.l2 ? l2NormalizedRows(matrix) : matrix.X;
+  let X = source;
   if (rows.length !== matrix.rows) {
     const d = matrix.cols;
     X = new Float32Array(new SharedArrayBuffer(Math.max(4, rows.length * d * 4)));
-    rows.forEach((r, i) => X.set(matrix.X.subarray(r * d, (r + 1) * d), i * d));
+    rows.forEach((r, i) => X.set(source.subarray(r * d, (r + 1) * d), i * d));
   }
   return { input: { sampleIds, labels: lab, rows: Int32Array.from(rows), X, cols: matrix.cols }, matrix };
 }

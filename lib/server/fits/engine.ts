@@ -51,13 +51,18 @@ function rebuildError(name: string, message: string): Error {
   return e;
 }
 
+/** Starts a worker thread on a .ts (through tsx's require hook) or .js entry. */
+export function startTsWorker(entry: string, workerData: unknown): Worker {
+  return entry.endsWith('.ts') ? new Worker(tsBootstrap(entry), { eval: true, workerData }) : new Worker(entry, { workerData });
+}
+
 /** Runs one engine job in a fresh worker thread (protocol of lib/margin/worker.ts). */
 export function runJobInWorker<J extends EngineJob>(job: J, onProgress: EngineProgress, signal: AbortSignal | undefined, entry: string): Promise<JobResult<J>> {
   if (signal?.aborted) return Promise.reject(new FitCancelledError());
   const cancelFlag = new SharedArrayBuffer(4);
   const flag = new Int32Array(cancelFlag);
   const workerData = { job, cancelFlag, progressIntervalMs: 200 };
-  const worker = entry.endsWith('.ts') ? new Worker(tsBootstrap(entry), { eval: true, workerData }) : new Worker(entry, { workerData });
+  const worker = startTsWorker(entry, workerData);
   return new Promise<JobResult<J>>((resolve, reject) => {
     let settled = false;
     let grace: NodeJS.Timeout | null = null;
@@ -89,6 +94,103 @@ export function runJobInWorker<J extends EngineJob>(job: J, onProgress: EnginePr
     worker.on('error', (e) => finish(() => reject(e)));
     worker.on('exit', (code) => finish(() => reject(new Error(`engine worker exited with code ${code} before returning a result`))));
   });
+}
+
+/** The refit service's own long-lived worker entry (fit-worker.ts). */
+export function fitWorkerPath(root: string = process.cwd()): string {
+  return join(root, 'lib', 'server', 'fits', 'fit-worker.ts');
+}
+
+const IDLE_MS = 120_000;
+
+/**
+ * An engine whose jobs run one at a time in one long-lived worker thread (fit-worker.ts): no thread
+ * start per refit, results transferred instead of copied. The thread ends after two idle minutes
+ * (and is started again on the next job); a cancelled job that does not stop within the grace
+ * period terminates it.
+ */
+export function persistentWorkerEngine(entry: string = fitWorkerPath()): EngineRunner {
+  let worker: Worker | null = null;
+  let idle: NodeJS.Timeout | null = null;
+  let nextId = 1;
+  let chain: Promise<unknown> = Promise.resolve();
+  const pending = new Map<number, { resolve: (v: unknown) => void; reject: (e: Error) => void; onProgress: EngineProgress }>();
+  const drop = (w: Worker, error: Error) => {
+    if (worker === w) worker = null;
+    for (const p of pending.values()) p.reject(error);
+    pending.clear();
+  };
+  const ensure = (): Worker => {
+    if (idle) clearTimeout(idle);
+    idle = null;
+    if (worker) return worker;
+    const w = startTsWorker(entry, {});
+    w.on('message', (m: { type: 'progress'; id: number; progress: WorkerProgress } | { type: 'result'; id: number; result: unknown } | { type: 'error'; id: number; name: string; message: string }) => {
+      const p = pending.get(m.id);
+      if (!p) return;
+      if (m.type === 'progress') p.onProgress(m.progress);
+      else {
+        pending.delete(m.id);
+        if (m.type === 'result') p.resolve(m.result);
+        else p.reject(rebuildError(m.name, m.message));
+      }
+    });
+    w.on('error', (e) => drop(w, e));
+    w.on('exit', (code) => drop(w, new Error(`engine worker exited with code ${code}`)));
+    worker = w;
+    return w;
+  };
+  const run = <J extends EngineJob>(job: J, onProgress: EngineProgress, signal: AbortSignal | undefined): Promise<JobResult<J>> => {
+    const go = (): Promise<JobResult<J>> => {
+      if (signal?.aborted) return Promise.reject(new FitCancelledError());
+      const w = ensure();
+      const id = nextId++;
+      const cancelFlag = new SharedArrayBuffer(4);
+      const flag = new Int32Array(cancelFlag);
+      return new Promise<JobResult<J>>((resolve, reject) => {
+        let grace: NodeJS.Timeout | null = null;
+        const onAbort = () => {
+          Atomics.store(flag, 0, 1);
+          grace = setTimeout(() => {
+            void w.terminate();
+          }, CANCEL_GRACE_MS);
+        };
+        const settle = () => {
+          if (grace) clearTimeout(grace);
+          signal?.removeEventListener('abort', onAbort);
+          idle = setTimeout(() => {
+            if (worker && pending.size === 0) {
+              void worker.terminate();
+              worker = null;
+            }
+          }, IDLE_MS);
+          idle.unref();
+        };
+        pending.set(id, {
+          resolve: (v) => {
+            settle();
+            resolve(v as JobResult<J>);
+          },
+          reject: (e) => {
+            settle();
+            reject(signal?.aborted ? new FitCancelledError() : e);
+          },
+          onProgress,
+        });
+        signal?.addEventListener('abort', onAbort, { once: true });
+        w.postMessage({ type: 'job', id, job, cancelFlag });
+      });
+    };
+    const next = chain.then(go, go);
+    chain = next.catch(() => undefined);
+    return next;
+  };
+  return {
+    name: 'persistent-worker-thread',
+    audit: (data, settings, onProgress, signal) => run({ kind: 'audit', data, settings }, onProgress, signal),
+    fit: (data, settings, onProgress, signal) => run({ kind: 'fit', data, settings }, onProgress, signal),
+    select: (data, settings, options, onProgress, signal) => run({ kind: 'select', data, settings, options }, onProgress, signal),
+  };
 }
 
 export function workerEngine(entry: string = engineWorkerPath()): EngineRunner {

@@ -34,6 +34,8 @@ export interface InProcessOptions {
   readonly onOutcome?: (projectId: string, outcome: ProcessOutcome) => void;
   /** queue a full pass after each quick pass (default true) */
   readonly followUp?: boolean;
+  /** called when a fit became current (its queue rebuilt), before its standings are stored */
+  readonly onComplete?: (projectId: string, fit: { id: string; revisionNumber: number; pass: 'full' | 'quick' }) => void;
   /** on start, queue a fit for every project that has none yet (default false) */
   readonly bootstrap?: boolean;
 }
@@ -175,6 +177,7 @@ export class InProcessFitQueue implements FitJobQueue {
           signal,
           followUp: this.#options.followUp,
           log: this.#options.log,
+          onComplete: (fit) => this.#options.onComplete?.(projectId, fit),
           onClaim: (fit) => {
             if (entry) entry.current = fit;
           },

@@ -12,7 +12,7 @@
 import { db as defaultDb, type Db } from '../db';
 import { writeTx } from '../queue/tx';
 import { enqueueCurrentRevisionTx } from './enqueue';
-import { inlineEngine, workerEngine, type EngineRunner } from './engine';
+import { inlineEngine, persistentWorkerEngine, type EngineRunner } from './engine';
 import { InProcessFitQueue } from './in-process';
 import { currentFitJobQueue, setFitJobQueue, type FitJobQueue } from './jobs';
 import { processProject, type ProcessOutcome } from './run-fit';
@@ -21,7 +21,7 @@ export { notifyFitQueued, currentFitJobQueue, setFitJobQueue, type FitJobQueue, 
 export { enqueueFitTx, enqueueCurrentRevisionTx } from './enqueue';
 export { processProject, type ProcessOutcome } from './run-fit';
 export { InProcessFitQueue } from './in-process';
-export { inlineEngine, workerEngine, type EngineRunner } from './engine';
+export { inlineEngine, persistentWorkerEngine, workerEngine, type EngineRunner } from './engine';
 
 const holder = globalThis as typeof globalThis & { __borderlineFitWorkerStart?: Promise<FitJobQueue> };
 
@@ -31,7 +31,7 @@ export function ensureFitWorker(client: Db = defaultDb()): Promise<FitJobQueue> 
   if (existing && holder.__borderlineFitWorkerStart) return holder.__borderlineFitWorkerStart;
   if (existing) return Promise.resolve(existing);
   const queue = new InProcessFitQueue(client, {
-    engine: workerEngine(),
+    engine: persistentWorkerEngine(),
     bootstrap: true,
     log: (line) => console.log(`[refit] ${line}`),
   });

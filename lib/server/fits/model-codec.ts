@@ -52,6 +52,8 @@ export interface ModelHeader {
     readonly zeroNormRows: number;
   };
   readonly boundaries: readonly BoundaryHeader[];
+  /** full passes: out-of-fold decision per boundary and sample, and pivot influence per sample */
+  readonly audit?: { readonly oof: readonly ArrayRef[]; readonly pivotDelta: ArrayRef } | null;
 }
 
 export interface DecodedBoundary extends Omit<BoundaryHeader, 'w' | 'alpha' | 'sv'> {
@@ -62,6 +64,7 @@ export interface DecodedBoundary extends Omit<BoundaryHeader, 'w' | 'alpha' | 's
 
 export interface DecodedModel {
   readonly header: ModelHeader;
+  readonly audit: { readonly oof: Float64Array[]; readonly pivotDelta: Float64Array } | null;
   readonly preprocessor: { kind: string; cols: number; mean: Float64Array | null; scale: Float64Array | null };
   readonly boundaries: readonly DecodedBoundary[];
 }
@@ -79,9 +82,18 @@ class BlobWriter {
   }
 }
 
-export function encodeModel(result: FitResult, sampleIds: readonly string[]): Uint8Array<ArrayBuffer> {
+/**
+ * `preprocessor` overrides the result's own when the rows were preprocessed before the engine saw
+ * them (the refit service L2-normalises rows itself and fits with scaling "none").
+ */
+export function encodeModel(
+  result: FitResult,
+  sampleIds: readonly string[],
+  preprocessor?: FitResult['preprocessor'],
+  audit?: { oof: readonly Float64Array[]; pivotDelta: Float64Array } | null,
+): Uint8Array<ArrayBuffer> {
   const blobs = new BlobWriter();
-  const p = result.preprocessor;
+  const p = preprocessor ?? result.preprocessor;
   const boundaries: BoundaryHeader[] = result.boundaries.map((b) => {
     const sv = b.supportVectors;
     return {
@@ -111,7 +123,7 @@ export function encodeModel(result: FitResult, sampleIds: readonly string[]): Ui
     kernel: result.settings.kernel,
     solver: result.settings.solver,
     C: result.settings.C,
-    scale: result.settings.scale,
+    scale: p.kind,
     preprocessor: {
       kind: p.kind,
       cols: p.cols,
@@ -121,6 +133,7 @@ export function encodeModel(result: FitResult, sampleIds: readonly string[]): Ui
       zeroNormRows: p.zeroNormRows,
     },
     boundaries,
+    audit: audit ? { oof: audit.oof.map((o) => blobs.add('f64', o)), pivotDelta: blobs.add('f64', audit.pivotDelta) } : null,
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const start = Math.ceil((8 + json.length) / 8) * 8;
@@ -183,6 +196,7 @@ export function decodeModel(bytes: Uint8Array): DecodedModel {
   const p = header.preprocessor;
   return {
     header,
+    audit: header.audit ? { oof: header.audit.oof.map(f64), pivotDelta: f64(header.audit.pivotDelta) } : null,
     preprocessor: { kind: p.kind, cols: p.cols, mean: p.mean ? f64(p.mean) : null, scale: p.scale ? f64(p.scale) : null },
     boundaries,
   };

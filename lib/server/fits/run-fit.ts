@@ -33,11 +33,11 @@ import { FitCancelledError } from '../../margin/types';
 import type { Db } from '../db';
 import { rebuildQueueTx, type QueueCandidate, type RebuildSummary } from '../queue/build';
 import { systemClock, type Clock } from '../queue/context';
-import { providerOf, writeTx } from '../queue/tx';
+import { providerOf, serialWrite, writeTx } from '../queue/tx';
 import { fitInput } from './data';
 import type { EngineRunner } from './engine';
 import { decodeModel, encodeModel } from './model-codec';
-import { insertStandings, packDetail, unpackDetail, type StandingRow } from './standings-store';
+import { insertStandings, packDetail, pruneStandings, type StandingRow } from './standings-store';
 
 /** Projects larger than this (rows × features) get quick passes between full passes. */
 export const QUICK_PASS_CELLS = 4_000_000;
@@ -72,6 +72,10 @@ export interface ProcessOptions {
   readonly onClaim?: (fit: { id: string; revisionNumber: number; followUp: boolean }) => void;
   /** queue a full pass after a quick one (default true) */
   readonly followUp?: boolean;
+  /** rows × features above which quick passes are used (default QUICK_PASS_CELLS) */
+  readonly quickPassCells?: number;
+  /** called right after the completing transaction committed: the fit is current, its queue rebuilt */
+  readonly onComplete?: (fit: { id: string; revisionNumber: number; pass: FitPass }) => void;
   readonly log?: (line: string) => void;
 }
 
@@ -105,7 +109,7 @@ export function resolveSolver(s: ProjectSettings, rows: number): 'smo' | 'dcd' {
   return s.kernel === 'linear' && rows > AUTO_DCD_ROWS ? 'dcd' : 'smo';
 }
 
-export function engineSettings(s: ProjectSettings, rows: number, cols: number, chosen: Chosen | null): FitSettings {
+export function engineSettings(s: ProjectSettings, rows: number, cols: number, chosen: Chosen | null, scale: FitSettings['scale'] = s.scale): FitSettings {
   const gamma = chosen?.gamma ?? s.gamma ?? 1 / Math.max(1, cols);
   const kernel =
     s.kernel === 'linear'
@@ -117,7 +121,7 @@ export function engineSettings(s: ProjectSettings, rows: number, cols: number, c
     kernel,
     C: chosen?.C ?? s.C,
     solver: resolveSolver(s, rows),
-    scale: s.scale,
+    scale,
     seed: s.seed,
     nearBand: s.nearBand,
     pivotThreshold: s.pivotThreshold,
@@ -210,14 +214,14 @@ function parseMetrics(json: string | null): StoredMetrics {
   }
 }
 
-/** The carried out-of-fold values of the project's newest full pass with `key` (memory, else DB). */
+/** The carried out-of-fold values of the project's newest full pass with `key` (memory, else its model). */
 async function carriedFor(db: Db, projectId: string, key: string): Promise<Carried | null> {
   const hit = carriedStore().get(projectId);
   if (hit && hit.key === key) return hit;
   const fits = await db.fit.findMany({
-    where: { projectId, status: 'done', progress: { gte: 1 } },
+    where: { projectId, status: 'done', model: { not: null } },
     orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }],
-    take: 10,
+    take: 20,
     select: { id: true, metrics: true },
   });
   const full = fits.find((f) => {
@@ -225,25 +229,25 @@ async function carriedFor(db: Db, projectId: string, key: string): Promise<Carri
     return m.pass === 'full' && m.carryKey === key && Array.isArray(m.classes);
   });
   if (!full) return null;
+  const row = await db.fit.findUnique({ where: { id: full.id }, select: { model: true } });
+  if (!row?.model) return null;
+  let decoded;
+  try {
+    decoded = decodeModel(row.model);
+  } catch {
+    return null;
+  }
+  if (!decoded.audit) return null;
   const m = parseMetrics(full.metrics);
+  const ids = decoded.header.sampleIds;
   const oof = new Map<string, Float64Array>();
   const pivotDelta = new Map<string, number>();
-  let cursor: string | undefined;
-  for (;;) {
-    const page = await db.standing.findMany({
-      where: { fitId: full.id },
-      orderBy: { id: 'asc' },
-      take: 10000,
-      ...(cursor ? { cursor: { id: cursor }, skip: 1 } : {}),
-      select: { id: true, sampleId: true, detail: true, flags: true },
-    });
-    for (const s of page) {
-      const d = unpackDetail(s.detail);
-      if (d && d.oofDecision.every((v) => v !== null)) oof.set(s.sampleId, Float64Array.from(d.oofDecision as number[]));
-      if (s.flags.split(',').includes('pivot')) pivotDelta.set(s.sampleId, Infinity);
-    }
-    if (page.length < 10000) break;
-    cursor = page[page.length - 1].id;
+  const B = decoded.audit.oof.length;
+  for (let i = 0; i < ids.length; i++) {
+    const v = new Float64Array(B);
+    for (let k = 0; k < B; k++) v[k] = decoded.audit.oof[k][i];
+    oof.set(ids[i], v);
+    if (decoded.audit.pivotDelta[i] !== 0) pivotDelta.set(ids[i], decoded.audit.pivotDelta[i]);
   }
   const carried: Carried = { fitId: full.id, key, classes: m.classes ?? [], oof, pivotDelta, chosen: m.selection ?? null };
   carriedStore().set(projectId, carried);
@@ -253,10 +257,17 @@ async function carriedFor(db: Db, projectId: string, key: string): Promise<Carri
 // ───────────────────────── per-sample records ─────────────────────────
 
 interface SampleRecords {
-  readonly rows: StandingRow[];
+  /** suspicion per sample (fit order) */
+  readonly suspicion: Float64Array;
+  /** out-of-fold margin per sample (NaN when not known) */
+  readonly oofMargin: Float64Array;
+  /** out-of-fold decision per boundary and sample (NaN when not known) */
+  readonly oofDecision: readonly Float64Array[];
   readonly candidates: QueueCandidate[];
-  readonly score: Map<string, { suspicion: number; reasons: string[] }>;
+  readonly scoreOf: (sampleId: string) => { suspicion: number; reasons: string[] } | null;
   readonly oofAccuracy: number | null;
+  /** the Standing row of sample i, built when the writer asks for it */
+  readonly rowAt: (i: number) => StandingRow;
 }
 
 function pivotDeltas(fit: FitResult): Float64Array {
@@ -285,75 +296,95 @@ function marginFrom(decisions: ArrayLike<number>, classes: readonly string[], la
   return { margin: decisions[own] - bestOther, predicted: best };
 }
 
-function buildRecords(
-  fit: FitResult,
-  audit: AuditResult | null,
-  carried: Carried | null,
-  threshold: number,
-): SampleRecords {
+/** Lets requests waiting on this thread's event loop through during long main-thread loops. */
+const yieldToEventLoop = () => new Promise<void>((resolve) => setImmediate(resolve));
+
+function reasonsOf(flagMask: number, oofMargin: number): string[] {
+  const reasons: string[] = flagNames(flagMask);
+  if (oofMargin < 0) reasons.push('held-out-wrong-side');
+  return reasons;
+}
+
+/**
+ * Scores every sample (typed arrays, no per-sample objects except for queue candidates) so the
+ * queue can be rebuilt at once; the Standing rows themselves are built later, batch by batch, by
+ * the standings writer (`rowAt`).
+ */
+async function scoreSamples(fit: FitResult, audit: AuditResult | null, carried: Carried | null, threshold: number): Promise<SampleRecords> {
   const n = fit.ids.length;
   const B = fit.boundaries.length;
   const multi = B > 1;
   const scale = multi ? 0.5 : 1;
   const deltas = audit ? pivotDeltas(fit) : null;
-  const rows: StandingRow[] = new Array(n);
+  const suspicion = new Float64Array(n);
+  const oofMargin = new Float64Array(n).fill(NaN);
+  const oofDecision = Array.from({ length: B }, () => new Float64Array(n).fill(NaN));
   const candidates: QueueCandidate[] = [];
-  const score = new Map<string, { suspicion: number; reasons: string[] }>();
   let oofCorrect = 0;
   let oofCount = 0;
   const sameClasses = carried !== null && carried.classes.join('\u0000') === fit.classes.join('\u0000');
-  const decisions = new Array<number>(B);
   for (let i = 0; i < n; i++) {
+    if (i > 0 && i % 8192 === 0) await yieldToEventLoop();
     const id = fit.ids[i];
-    const label = fit.labels[i];
-    const own = multi ? fit.classIndex[i] : 0;
-    const st = fit.boundaries[own].standings;
-    for (let k = 0; k < B; k++) decisions[k] = fit.boundaries[k].standings.decision[i];
-    let oofDecisions: number[] | null = null;
-    let oofMargin: number | null = null;
-    let oofPredicted = -1;
+    let m = NaN;
+    let predicted = -1;
     if (audit) {
-      oofDecisions = audit.outOfFold.decision.map((d) => d[i]);
-      oofMargin = audit.outOfFold.margin[i];
-      oofPredicted = audit.outOfFold.predicted[i];
+      for (let k = 0; k < B; k++) oofDecision[k][i] = audit.outOfFold.decision[k][i];
+      m = audit.outOfFold.margin[i];
+      predicted = audit.outOfFold.predicted[i];
     } else if (sameClasses && carried) {
       const c = carried.oof.get(id);
       if (c && c.length === B) {
-        oofDecisions = Array.from(c);
-        const m = marginFrom(c, fit.classes, label);
-        oofMargin = m.margin;
-        oofPredicted = m.predicted;
+        for (let k = 0; k < B; k++) oofDecision[k][i] = c[k];
+        const r = marginFrom(c, fit.classes, fit.labels[i]);
+        m = r.margin;
+        predicted = r.predicted;
       }
     }
-    if (oofMargin !== null) {
+    oofMargin[i] = m;
+    if (!Number.isNaN(m)) {
       oofCount++;
-      if (oofPredicted === fit.classIndex[i]) oofCorrect++;
+      if (predicted === fit.classIndex[i]) oofCorrect++;
     }
     const inMargin = fit.samples.margin[i];
     const pd = deltas ? deltas[i] : (carried?.pivotDelta.get(id) ?? 0);
-    const suspicion = audit
+    suspicion[i] = audit
       ? audit.suspicion[i]
-      : suspicionScore(scale * (oofMargin ?? inMargin), scale * inMargin, Number.isFinite(pd) ? pd : 2 * threshold, threshold);
-    const flags = flagNames(fit.samples.flags[i]);
-    const reasons: string[] = [...flags];
-    if (oofMargin !== null && oofMargin < 0) reasons.push('held-out-wrong-side');
-    rows[i] = {
-      sampleId: id,
-      margin: inMargin,
+      : suspicionScore(scale * (Number.isNaN(m) ? inMargin : m), scale * inMargin, Number.isFinite(pd) ? pd : 2 * threshold, threshold);
+    if (fit.samples.flags[i] !== 0 || m < 0) {
+      candidates.push({ sampleId: id, suspicion: suspicion[i], reasons: reasonsOf(fit.samples.flags[i], m), label: fit.labels[i] });
+    }
+  }
+  let index: Map<string, number> | null = null;
+  const scoreOf = (sampleId: string) => {
+    index ??= new Map(fit.ids.map((id, i) => [id, i]));
+    const i = index.get(sampleId);
+    return i === undefined ? null : { suspicion: suspicion[i], reasons: reasonsOf(fit.samples.flags[i], oofMargin[i]) };
+  };
+  const decisions = new Array<number>(B);
+  const oofs = new Array<number>(B);
+  const rowAt = (i: number): StandingRow => {
+    const own = multi ? fit.classIndex[i] : 0;
+    const st = fit.boundaries[own].standings;
+    for (let k = 0; k < B; k++) {
+      decisions[k] = fit.boundaries[k].standings.decision[i];
+      oofs[k] = oofDecision[k][i];
+    }
+    return {
+      sampleId: fit.ids[i],
+      margin: fit.samples.margin[i],
       distance: fit.samples.distance[i],
       slack: st.slack[i],
       alpha: fit.samples.alpha[i],
       svKind: supportKindName(st.support[i]),
-      oofMargin,
-      flags: flags.join(','),
-      suspicion,
+      oofMargin: Number.isNaN(oofMargin[i]) ? null : oofMargin[i],
+      flags: flagNames(fit.samples.flags[i]).join(','),
+      suspicion: suspicion[i],
       predicted: fit.classes[fit.samples.predicted[i]],
-      detail: packDetail(decisions, oofDecisions),
+      detail: packDetail(decisions, Number.isNaN(oofMargin[i]) ? null : oofs),
     };
-    score.set(id, { suspicion, reasons });
-    if (reasons.length > 0) candidates.push({ sampleId: id, suspicion, reasons, label });
-  }
-  return { rows, candidates, score, oofAccuracy: oofCount > 0 ? oofCorrect / oofCount : null };
+  };
+  return { suspicion, oofMargin, oofDecision, candidates, scoreOf, oofAccuracy: oofCount > 0 ? oofCorrect / oofCount : null, rowAt };
 }
 
 // ───────────────────────── metrics ─────────────────────────
@@ -371,6 +402,7 @@ function buildMetrics(
     selection: Chosen | null;
     oofAccuracy: number | null;
     oofCarriedFrom: string | null;
+    scale: string;
     rows: number;
     cols: number;
     candidates: number;
@@ -406,7 +438,8 @@ function buildMetrics(
     kernel: fit.settings.kernel,
     C: fit.settings.C,
     solver: fit.settings.solver,
-    scale: fit.settings.scale,
+    scale: extra.scale,
+    preprocessing: extra.scale === 'l2' && fit.settings.scale === 'none' ? 'rows L2-normalised by the refit service' : 'by the engine',
     folds: fit.settings.folds,
     seed: fit.settings.seed,
     nearBand: fit.settings.nearBand,
@@ -503,7 +536,7 @@ async function claim(db: Db, projectId: string, now: Date) {
 }
 
 async function finishWithStatus(db: Db, fitId: string, status: 'failed' | 'cancelled', error: string, now: Date): Promise<void> {
-  await db.fit.updateMany({ where: { id: fitId, status: 'running' }, data: { status, error: error.slice(0, 2000), finishedAt: now } });
+  await serialWrite(db, () => db.fit.updateMany({ where: { id: fitId, status: 'running' }, data: { status, error: error.slice(0, 2000), finishedAt: now } }));
 }
 
 /** Runs at most one queued fit of the project. Returns null when there was nothing to run. */
@@ -546,12 +579,17 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     if (!force && now - lastWrite < 400) return;
     lastWrite = now;
     const v = Math.max(0, Math.min(0.99, value));
-    writing = writing.then(() => db.fit.updateMany({ where: { id: fitId, status: 'running' }, data: { progress: v } })).catch(() => {});
+    writing = writing.then(() => serialWrite(db, () => db.fit.updateMany({ where: { id: fitId, status: 'running' }, data: { progress: v } }))).catch(() => {});
   };
 
   let pass: FitPass = 'full';
   try {
-    const { input } = await fitInput(db, projectId, claimed.revisionNumber);
+    // L2 scaling is applied here once per feature matrix (see l2NormalizedRows); the engine then
+    // fits the normalised rows with scaling "none".
+    const l2 = snapshot.settings.scale === 'l2';
+    const { input } = await fitInput(db, projectId, claimed.revisionNumber, { l2 });
+    const engineScale: FitSettings['scale'] = l2 ? 'none' : snapshot.settings.scale;
+    const preprocessorOverride = l2 ? { kind: 'l2' as const, cols: input.cols, mean: null, scale: null, zeroVarianceColumns: [], zeroNormRows: 0 } : undefined;
     const n = input.sampleIds.length;
     const d = input.cols;
     if (new Set(input.labels).size < 2) {
@@ -559,10 +597,10 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
       return outcome('failed', null, 'A fit needs samples of at least two classes.');
     }
     const s = snapshot.settings;
-    const baseSettings = engineSettings(s, n, d, null);
+    const baseSettings = engineSettings(s, n, d, null, engineScale);
     const key = carryKey(baseSettings);
     const carried = await carriedFor(db, projectId, key);
-    const large = n * d > QUICK_PASS_CELLS;
+    const large = n * d > (options.quickPassCells ?? QUICK_PASS_CELLS);
     pass = !snapshot.followUp && large && carried !== null ? 'quick' : 'full';
     let chosen: Chosen | null = s.autoSelect ? (carried?.chosen ?? null) : null;
     const data: LabelledData = { ids: input.sampleIds, labels: input.labels, X: { data: input.X, rows: n, cols: d } };
@@ -578,7 +616,7 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
       const sel = await options.engine.select(data, baseSettings, {}, onProgress, options.signal);
       chosen = { C: sel.best.C, gamma: sel.best.gamma };
     }
-    const fitSettings = engineSettings(s, n, d, chosen);
+    const fitSettings = engineSettings(s, n, d, chosen, engineScale);
     const warm = await warmStartFor(db, projectId, warmKey(fitSettings));
     const settingsWithWarm: FitSettings = warm ? { ...fitSettings, warmStart: warm.warm } : fitSettings;
     let fit: FitResult;
@@ -591,7 +629,7 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     }
     const engineMs = performance.now() - engineStart;
 
-    const records = buildRecords(fit, audit, pass === 'quick' ? carried : null, fit.settings.pivotThreshold);
+    const records = await scoreSamples(fit, audit, pass === 'quick' ? carried : null, fit.settings.pivotThreshold);
     const metrics = buildMetrics(fit, {
       pass,
       carryKey: key,
@@ -599,11 +637,11 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
       selection: chosen,
       oofAccuracy: records.oofAccuracy,
       oofCarriedFrom: pass === 'quick' ? (carried?.fitId ?? null) : null,
+      scale: s.scale,
       rows: n,
       cols: d,
       candidates: records.candidates.length,
     });
-    const model = encodeModel(fit, input.sampleIds);
     await writing;
 
     const completeStart = performance.now();
@@ -636,7 +674,7 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
         fitId,
         revisionNumber: claimed.revisionNumber,
         candidates: records.candidates,
-        scoreOf: (id) => records.score.get(id) ?? null,
+        scoreOf: records.scoreOf,
         queueCap: s.queueCap,
         now,
         provider,
@@ -649,7 +687,6 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
           finishedAt: now,
           formulation: fit.boundaries[0]?.formulation ?? null,
           metrics: JSON.stringify({ ...metrics, queue }),
-          model,
           warmFromFitId: warm?.fitId ?? null,
         },
       });
@@ -661,6 +698,8 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
       log(`fit ${fitId} (revision ${claimed.revisionNumber}) superseded by a newer completed fit`);
       return outcome('superseded', pass);
     }
+
+    options.onComplete?.({ id: fitId, revisionNumber: claimed.revisionNumber, pass });
 
     // Remember what the next fits can reuse.
     warmStore().set(projectId, {
@@ -680,12 +719,18 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     }
 
     const standingsStart = performance.now();
-    await insertStandings(db, provider, fitId, records.rows, (written) => {
-      if (written === records.rows.length) return;
-      return db.fit.update({ where: { id: fitId }, data: { progress: 0.99 } }).then(() => undefined);
-    });
-    await db.fit.update({ where: { id: fitId }, data: { progress: 1 } });
+    // The serialised model (warm start for a later process, evaluation on new rows), then the
+    // standings: both after the queue is refreshed, so neither delays it.
+    const model = encodeModel(fit, input.sampleIds, preprocessorOverride, audit ? { oof: audit.outOfFold.decision, pivotDelta: pivotDeltas(fit) } : null);
+    await serialWrite(db, () => db.fit.update({ where: { id: fitId }, data: { model } }));
+    await insertStandings(db, provider, fitId, n, records.rowAt);
+    await serialWrite(db, () => db.fit.update({ where: { id: fitId }, data: { progress: 1 } }));
     const standingsMs = performance.now() - standingsStart;
+    try {
+      await pruneStandings(db, projectId);
+    } catch (e) {
+      log(`could not prune old standings of project ${projectId}: ${e instanceof Error ? e.message : String(e)}`);
+    }
 
     if (pass === 'quick' && options.followUp !== false) {
       await queueFollowUp(db, projectId, fitId, claimed.revisionNumber);

@@ -10,9 +10,8 @@
  * Non-finite numbers cannot be stored in a SQLite REAL NOT NULL column (NaN becomes NULL), so
  * values are clamped: NaN → 0, ±∞ → ±1e30. Only degenerate fits (‖w‖ = 0) produce them.
  */
-import { randomUUID } from 'node:crypto';
 import type { Db, DbTx } from '../db';
-import type { Provider } from '../queue/tx';
+import { serialWrite, type Provider } from '../queue/tx';
 
 export interface StandingRow {
   readonly sampleId: string;
@@ -59,27 +58,32 @@ export function unpackDetail(bytes: Uint8Array | null): { decision: number[]; oo
 }
 
 const COLUMNS = ['id', 'fitId', 'sampleId', 'margin', 'distance', 'slack', 'alpha', 'svKind', 'oofMargin', 'flags', 'suspicion', 'predicted', 'detail'] as const;
-const BATCH = 1000;
+/**
+ * Rows per INSERT. Small enough that one statement (which better-sqlite3 runs synchronously on the
+ * server's thread) stays in the tens of milliseconds, so requests interleave with a 100k-row write.
+ */
+const BATCH = 250;
 
-/** Inserts the standings of one fit (rows may be any order). Returns the number written. */
-export async function insertStandings(
-  client: Db | DbTx,
-  provider: Provider,
-  fitId: string,
-  rows: readonly StandingRow[],
-  onBatch?: (written: number) => Promise<void> | void,
-): Promise<number> {
+/**
+ * Inserts the standings of one fit: `count` rows, row i built by `rowAt(i)` when its batch is
+ * written. Row ids are `<fitId>:<sequence>` (zero-padded), so a fit's rows are contiguous in the
+ * primary key and new rows append instead of landing at random places (about 4× faster on a large
+ * SQLite table); the fit's rows should come in sample-id order for the same reason (the feature
+ * matrix, and so every fit, is in sample-id order). The event loop gets a turn between batches.
+ */
+export async function insertStandings(client: Db, provider: Provider, fitId: string, count: number, rowAt: (i: number) => StandingRow): Promise<number> {
   const head = `INSERT INTO "Standing" (${COLUMNS.map((c) => `"${c}"`).join(', ')}) VALUES `;
   let written = 0;
-  for (let start = 0; start < rows.length; start += BATCH) {
-    const slice = rows.slice(start, start + BATCH);
+  for (let start = 0; start < count; start += BATCH) {
+    const end = Math.min(count, start + BATCH);
     const values: unknown[] = [];
     const tuples: string[] = [];
-    for (const r of slice) {
+    for (let i = start; i < end; i++) {
+      const r = rowAt(i);
       const base = values.length;
       tuples.push(`(${COLUMNS.map((_, k) => (provider === 'postgresql' ? `$${base + k + 1}` : '?')).join(', ')})`);
       values.push(
-        randomUUID(),
+        standingId(fitId, i),
         fitId,
         r.sampleId,
         finite(r.margin),
@@ -94,9 +98,55 @@ export async function insertStandings(
         r.detail,
       );
     }
-    await client.$executeRawUnsafe(head + tuples.join(', '), ...values);
-    written += slice.length;
-    if (onBatch) await onBatch(written);
+    await serialWrite(client, () => client.$executeRawUnsafe(head + tuples.join(', '), ...values));
+    written += end - start;
+    await new Promise<void>((resolve) => setImmediate(resolve));
   }
   return written;
+}
+
+/** The primary key of a fit's i-th standing. */
+export function standingId(fitId: string, i: number): string {
+  return `${fitId}:${i.toString().padStart(8, '0')}`;
+}
+
+/** Standings are kept for this many of a project's newest completed fits (plus its newest full pass). */
+export const STANDINGS_RETENTION = 5;
+
+/**
+ * Drops the standings of older fits (their metrics and model stay): all but the newest
+ * STANDINGS_RETENTION done fits and the newest done full pass, and every superseded, failed or
+ * cancelled fit. Deletes in chunks so no single statement holds the database for long.
+ */
+export async function pruneStandings(client: Db, projectId: string): Promise<number> {
+  const done = await client.fit.findMany({
+    where: { projectId, status: 'done' },
+    orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }],
+    select: { id: true, metrics: true },
+  });
+  const keep = new Set(done.slice(0, STANDINGS_RETENTION).map((f) => f.id));
+  const newestFull = done.find((f) => (f.metrics ?? '').includes('"pass":"full"'));
+  if (newestFull) keep.add(newestFull.id);
+  const candidates = await client.fit.findMany({ where: { projectId, id: { notIn: [...keep] }, standings: { some: {} } }, select: { id: true } });
+  let removed = 0;
+  for (const fit of candidates) {
+    // Rows written by insertStandings: delete by contiguous id ranges (cheap on the primary key).
+    for (let lo = 0; ; lo += 2000) {
+      const r = await serialWrite(client, () =>
+        client.standing.deleteMany({ where: { fitId: fit.id, id: { gte: standingId(fit.id, lo), lt: standingId(fit.id, lo + 2000) } } }),
+      );
+      removed += r.count;
+      await new Promise<void>((resolve) => setImmediate(resolve));
+      if (r.count === 0) break;
+    }
+    // Anything else (rows with other ids): in chunks.
+    for (;;) {
+      const chunk = await client.standing.findMany({ where: { fitId: fit.id }, select: { id: true }, take: 2000 });
+      if (chunk.length === 0) break;
+      const r = await serialWrite(client, () => client.standing.deleteMany({ where: { id: { in: chunk.map((c) => c.id) } } }));
+      removed += r.count;
+      await new Promise<void>((resolve) => setImmediate(resolve));
+    }
+  }
+  return removed;
 }

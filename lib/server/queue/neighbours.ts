@@ -7,6 +7,9 @@
  */
 import type { FeatureMatrix } from '../fits/data';
 
+/** The part of a feature matrix the search reads (what crosses into the neighbour worker). */
+export type MatrixView = Pick<FeatureMatrix, 'projectId' | 'fingerprint' | 'X' | 'rows' | 'cols'>;
+
 export type Scaling = 'standard' | 'l2' | 'none';
 
 interface Prepared {
@@ -20,7 +23,7 @@ interface Prepared {
 const store = globalThis as typeof globalThis & { __borderlineNeighbourPrep?: Map<string, Prepared> };
 const prepStore = (): Map<string, Prepared> => (store.__borderlineNeighbourPrep ??= new Map());
 
-function prepare(m: FeatureMatrix, scaling: Scaling): Prepared {
+function prepare(m: MatrixView, scaling: Scaling): Prepared {
   const key = `${m.projectId}:${scaling}`;
   const hit = prepStore().get(key);
   if (hit && hit.fingerprint === m.fingerprint) return hit;
@@ -63,7 +66,7 @@ export interface Neighbour {
 }
 
 /** The k nearest rows to `row` (itself excluded), nearest first; ties by row index. */
-export function nearestNeighbours(m: FeatureMatrix, scaling: Scaling, row: number, k = 5): Neighbour[] {
+export function nearestNeighbours(m: MatrixView, scaling: Scaling, row: number, k = 5): Neighbour[] {
   const { X, rows: n, cols: d } = m;
   const p = prepare(m, scaling);
   const q = row * d;

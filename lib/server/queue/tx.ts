@@ -72,6 +72,15 @@ export interface WriteTxOptions {
 
 let sqliteTail: Promise<void> = Promise.resolve();
 
+/**
+ * A write outside a transaction (bulk inserts, chunked deletes): on SQLite it takes its turn on the
+ * same mutex as writeTx, so it never runs on the shared connection while another request's
+ * transaction is open there; on PostgreSQL it runs as is.
+ */
+export function serialWrite<T>(db: Db, fn: () => Promise<T>): Promise<T> {
+  return providerOf(db) === 'sqlite' ? sqliteTurn(fn) : fn();
+}
+
 /** Runs `fn` when every earlier SQLite write transaction of this process has finished. */
 async function sqliteTurn<T>(fn: () => Promise<T>): Promise<T> {
   const previous = sqliteTail;

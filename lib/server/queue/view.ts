@@ -12,12 +12,13 @@ import { roleAtLeast } from '../../domain';
 import type { TeamScope } from '../authz/scope';
 import { forbidden, notFound } from '../authz/errors';
 import type { Db } from '../db';
-import { featureMatrix } from '../fits/data';
+import { featureMatrixForReading } from '../fits/data';
 import { unpackDetail } from '../fits/standings-store';
 import { pendingChanges } from './apply';
 import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
-import { nearestNeighbours, type Scaling } from './neighbours';
+import { type Scaling } from './neighbours';
+import { neighboursOfRow, prefetchNeighbours } from './neighbour-service';
 import { describeStanding, type StandingWords } from './words';
 
 export interface StandingView extends StandingWords {
@@ -139,14 +140,15 @@ export async function standingOf(db: Db, sampleId: string, label: string, fallba
 }
 
 async function neighboursOf(db: Db, projectId: string, sampleId: string, scaling: Scaling): Promise<NeighbourView[]> {
-  const m = await featureMatrix(db, projectId);
+  const m = await featureMatrixForReading(db, projectId);
   const row = m.rowOf.get(sampleId);
   if (row === undefined) return [];
-  const near = nearestNeighbours(m, scaling, row, 5);
-  const ids = near.map((x) => m.sampleIds[x.row]);
+  const near = await neighboursOfRow(m, scaling, row);
+  const found = near;
+  const ids = found.map((x) => m.sampleIds[x.row]);
   const samples = await db.sample.findMany({ where: { id: { in: ids } }, select: { id: true, externalId: true, currentLabel: true, text: true } });
   const byId = new Map(samples.map((s) => [s.id, s]));
-  return near.flatMap((x) => {
+  return found.flatMap((x) => {
     const s = byId.get(m.sampleIds[x.row]);
     if (!s) return [];
     return [{ sampleId: s.id, externalId: s.externalId, label: s.currentLabel, distance: x.distance, text: s.text ? s.text.slice(0, 160) : null }];
@@ -166,6 +168,19 @@ async function classNames(db: Db, projectId: string): Promise<string[]> {
   return (await db.projectClass.findMany({ where: { projectId }, orderBy: { position: 'asc' }, select: { name: true } })).map((c) => c.name);
 }
 
+/** Searches neighbours ahead for the items "next" is likely to hand out soon. */
+async function prefetchUpcoming(db: Db, projectId: string, scaling: Scaling): Promise<void> {
+  const upcoming = await db.queueItem.findMany({
+    where: { projectId, state: { in: ['open', 'one-vote'] } },
+    orderBy: [{ state: 'asc' }, { suspicion: 'desc' }, { id: 'asc' }],
+    take: 24,
+    select: { sampleId: true },
+  });
+  const m = await featureMatrixForReading(db, projectId);
+  const rows = upcoming.map((u) => m.rowOf.get(u.sampleId)).filter((r): r is number => r !== undefined);
+  prefetchNeighbours(m, scaling, rows);
+}
+
 /** The item the caller holds the lease on, as the reviewer screen shows it (no votes). */
 export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
   const { db } = deps;
@@ -182,6 +197,7 @@ export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: 
     standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand),
     neighboursOf(db, project.id, item.sampleId, settings.scale),
   ]);
+  void prefetchUpcoming(db, project.id, settings.scale).catch(() => undefined);
   return {
     itemId: item.id,
     round: item.round,
