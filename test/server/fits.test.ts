@@ -9,6 +9,7 @@ import { InProcessFitQueue } from '@/lib/server/fits/in-process';
 import { setFitJobQueue } from '@/lib/server/fits/jobs';
 import { processProject, resetFitMemory, runClaimedFit, type ProcessOutcome } from '@/lib/server/fits/run-fit';
 import { decodeModel } from '@/lib/server/fits/model-codec';
+import { inlineStandingsWriter, workerStandingsWriter } from '@/lib/server/fits/standings-writer';
 import { castVote } from '@/lib/server/queue/vote';
 import { createTestDatabase, type TestDatabase } from './db-harness';
 import { createQueueFixture, type QueueFixture } from './queue-fixtures';
@@ -268,7 +269,10 @@ describe('quick passes and engines', () => {
     const followUp = await db.fit.findFirstOrThrow({ where: { projectId: f.projectId, status: 'queued' } });
     expect(followUp.revisionNumber).toBe(1);
     expect((JSON.parse(followUp.settings) as { followUp: boolean }).followUp).toBe(true);
-    const full = await processProject(db, f.projectId, options);
+    // It waits while the project is busy (a revision younger than the quiet period) …
+    expect(await processProject(db, f.projectId, options)).toBeNull();
+    // … and runs once it is quiet.
+    const full = await processProject(db, f.projectId, { ...options, followUpQuietMs: 0 });
     expect([full?.pass, full?.status]).toEqual(['full', 'done']);
   });
 
@@ -285,6 +289,25 @@ describe('quick passes and engines', () => {
     }
     expect(margins[1]).toEqual(margins[0]);
     expect(margins[2]).toEqual(margins[0]);
+  });
+});
+
+describe('standings writers', () => {
+  it('the writer thread stores the same rows as the inline writer', async () => {
+    const byWriter: Map<string, { margin: number; flags: string; suspicion: number; detail: string; predicted: string }>[] = [];
+    for (const standingsWriter of [inlineStandingsWriter(db), workerStandingsWriter(t.config)]) {
+      const f = await twoClassProject();
+      await queueFit(f, await revision0(f));
+      const out = await processProject(db, f.projectId, { engine: inlineEngine, standingsWriter });
+      expect(out?.status).toBe('done');
+      const rows = await db.standing.findMany({ where: { fitId: out?.fitId }, include: { sample: true } });
+      expect(rows).toHaveLength(80);
+      expect(rows.every((r) => r.id.startsWith(`${out?.fitId}:`))).toBe(true);
+      byWriter.push(
+        new Map(rows.map((r) => [r.sample.externalId, { margin: r.margin, flags: r.flags, suspicion: r.suspicion, detail: Buffer.from(r.detail ?? new Uint8Array()).toString('hex'), predicted: r.predicted }])),
+      );
+    }
+    expect([...byWriter[1].entries()].sort()).toEqual([...byWriter[0].entries()].sort());
   });
 });
 

@@ -21,6 +21,7 @@ import type { Clock } from '../queue/context';
 import { writeTx } from '../queue/tx';
 import { enqueueCurrentRevisionTx } from './enqueue';
 import type { EngineRunner } from './engine';
+import type { StandingsWriter } from './standings-writer';
 import type { FitJobQueue, FitRequest } from './jobs';
 import { processProject, type ProcessOutcome } from './run-fit';
 
@@ -36,6 +37,8 @@ export interface InProcessOptions {
   readonly followUp?: boolean;
   /** called when a fit became current (its queue rebuilt), before its standings are stored */
   readonly onComplete?: (projectId: string, fit: { id: string; revisionNumber: number; pass: 'full' | 'quick' }) => void;
+  /** where standings go (default: batched inserts through the queue's client) */
+  readonly standingsWriter?: StandingsWriter;
   /** on start, queue a fit for every project that has none yet (default false) */
   readonly bootstrap?: boolean;
 }
@@ -178,6 +181,7 @@ export class InProcessFitQueue implements FitJobQueue {
           followUp: this.#options.followUp,
           log: this.#options.log,
           onComplete: (fit) => this.#options.onComplete?.(projectId, fit),
+          standingsWriter: this.#options.standingsWriter,
           onClaim: (fit) => {
             if (entry) entry.current = fit;
           },

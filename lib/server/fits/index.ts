@@ -10,6 +10,8 @@
  *   notifyFitQueued(request)     after committing a queued Fit row
  */
 import { db as defaultDb, type Db } from '../db';
+import { env, type DatabaseConfig } from '../env';
+import { workerStandingsWriter } from './standings-writer';
 import { writeTx } from '../queue/tx';
 import { enqueueCurrentRevisionTx } from './enqueue';
 import { inlineEngine, persistentWorkerEngine, type EngineRunner } from './engine';
@@ -25,13 +27,20 @@ export { inlineEngine, persistentWorkerEngine, workerEngine, type EngineRunner }
 
 const holder = globalThis as typeof globalThis & { __borderlineFitWorkerStart?: Promise<FitJobQueue> };
 
-/** Starts the in-process fit worker of this server process (once). */
-export function ensureFitWorker(client: Db = defaultDb()): Promise<FitJobQueue> {
+/**
+ * Starts the in-process fit worker of this server process (once). With no arguments it serves the
+ * app's database (DATABASE_URL) and stores standings through a writer thread of its own; pass a
+ * client (and its configuration, to keep the writer thread) to serve another database.
+ */
+export function ensureFitWorker(client?: Db, config?: DatabaseConfig): Promise<FitJobQueue> {
   const existing = currentFitJobQueue();
   if (existing && holder.__borderlineFitWorkerStart) return holder.__borderlineFitWorkerStart;
   if (existing) return Promise.resolve(existing);
-  const queue = new InProcessFitQueue(client, {
+  const target = client ?? defaultDb();
+  const writerConfig = config ?? (client === undefined ? env().database : undefined);
+  const queue = new InProcessFitQueue(target, {
     engine: persistentWorkerEngine(),
+    ...(writerConfig ? { standingsWriter: workerStandingsWriter(writerConfig) } : {}),
     bootstrap: true,
     log: (line) => console.log(`[refit] ${line}`),
   });

@@ -37,7 +37,8 @@ import { providerOf, serialWrite, writeTx } from '../queue/tx';
 import { fitInput } from './data';
 import type { EngineRunner } from './engine';
 import { decodeModel, encodeModel } from './model-codec';
-import { insertStandings, packDetail, pruneStandings, type StandingRow } from './standings-store';
+import { fitsToPrune } from './standings-store';
+import { inlineStandingsWriter, type StandingColumns, type StandingsWriter } from './standings-writer';
 
 /** Projects larger than this (rows × features) get quick passes between full passes. */
 export const QUICK_PASS_CELLS = 4_000_000;
@@ -72,6 +73,10 @@ export interface ProcessOptions {
   readonly onClaim?: (fit: { id: string; revisionNumber: number; followUp: boolean }) => void;
   /** queue a full pass after a quick one (default true) */
   readonly followUp?: boolean;
+  /** where standings go (default: batched inserts through `db`) */
+  readonly standingsWriter?: StandingsWriter;
+  /** a queued follow-up full pass waits until the newest revision is this old (default 60 s) */
+  readonly followUpQuietMs?: number;
   /** rows × features above which quick passes are used (default QUICK_PASS_CELLS) */
   readonly quickPassCells?: number;
   /** called right after the completing transaction committed: the fit is current, its queue rebuilt */
@@ -266,8 +271,8 @@ interface SampleRecords {
   readonly candidates: QueueCandidate[];
   readonly scoreOf: (sampleId: string) => { suspicion: number; reasons: string[] } | null;
   readonly oofAccuracy: number | null;
-  /** the Standing row of sample i, built when the writer asks for it */
-  readonly rowAt: (i: number) => StandingRow;
+  /** the standings of every sample as columns, for the standings writer */
+  readonly columns: () => StandingColumns;
 }
 
 function pivotDeltas(fit: FitResult): Float64Array {
@@ -361,30 +366,36 @@ async function scoreSamples(fit: FitResult, audit: AuditResult | null, carried: 
     const i = index.get(sampleId);
     return i === undefined ? null : { suspicion: suspicion[i], reasons: reasonsOf(fit.samples.flags[i], oofMargin[i]) };
   };
-  const decisions = new Array<number>(B);
-  const oofs = new Array<number>(B);
-  const rowAt = (i: number): StandingRow => {
-    const own = multi ? fit.classIndex[i] : 0;
-    const st = fit.boundaries[own].standings;
-    for (let k = 0; k < B; k++) {
-      decisions[k] = fit.boundaries[k].standings.decision[i];
-      oofs[k] = oofDecision[k][i];
+  const columns = (): StandingColumns => {
+    const slack = new Float64Array(n);
+    const support = new Uint8Array(n);
+    const detail = new Float32Array(n * 2 * B);
+    for (let i = 0; i < n; i++) {
+      const st = fit.boundaries[multi ? fit.classIndex[i] : 0].standings;
+      slack[i] = st.slack[i];
+      support[i] = st.support[i];
+      for (let k = 0; k < B; k++) {
+        detail[i * 2 * B + 2 * k] = fit.boundaries[k].standings.decision[i];
+        detail[i * 2 * B + 2 * k + 1] = Number.isNaN(oofMargin[i]) ? NaN : oofDecision[k][i];
+      }
     }
     return {
-      sampleId: fit.ids[i],
-      margin: fit.samples.margin[i],
-      distance: fit.samples.distance[i],
-      slack: st.slack[i],
-      alpha: fit.samples.alpha[i],
-      svKind: supportKindName(st.support[i]),
-      oofMargin: Number.isNaN(oofMargin[i]) ? null : oofMargin[i],
-      flags: flagNames(fit.samples.flags[i]).join(','),
-      suspicion: suspicion[i],
-      predicted: fit.classes[fit.samples.predicted[i]],
-      detail: packDetail(decisions, Number.isNaN(oofMargin[i]) ? null : oofs),
+      sampleIds: fit.ids,
+      classes: fit.classes,
+      margin: fit.samples.margin,
+      distance: fit.samples.distance,
+      slack,
+      alpha: fit.samples.alpha,
+      support,
+      oofMargin,
+      flags: fit.samples.flags,
+      suspicion,
+      predicted: fit.samples.predicted,
+      detail,
+      detailWidth: 2 * B,
     };
   };
-  return { suspicion, oofMargin, oofDecision, candidates, scoreOf, oofAccuracy: oofCount > 0 ? oofCorrect / oofCount : null, rowAt };
+  return { suspicion, oofMargin, oofDecision, candidates, scoreOf, oofAccuracy: oofCount > 0 ? oofCorrect / oofCount : null, columns };
 }
 
 // ───────────────────────── metrics ─────────────────────────
@@ -513,7 +524,10 @@ function progressMapper(pass: FitPass, withSelection: boolean): (p: WorkerProgre
 
 // ───────────────────────── the job ─────────────────────────
 
-async function claim(db: Db, projectId: string, now: Date) {
+/** A follow-up full pass waits until the project has had no new revision for this long. */
+export const FOLLOW_UP_QUIET_MS = 60_000;
+
+async function claim(db: Db, projectId: string, now: Date, quietMs: number) {
   return writeTx(db, [{ table: 'Project', id: projectId }], async (tx) => {
     const running = await tx.fit.findFirst({ where: { projectId, status: 'running' }, select: { id: true } });
     if (running) return null;
@@ -524,6 +538,11 @@ async function claim(db: Db, projectId: string, now: Date) {
     });
     if (queued.length === 0) return null;
     const [chosen, ...rest] = queued;
+    if (readSnapshot(chosen.settings).followUp && quietMs > 0) {
+      // Reviewers are still changing labels: a full pass now would be cancelled by the next apply.
+      const latest = await tx.revision.findFirst({ where: { projectId }, orderBy: { number: 'desc' }, select: { createdAt: true } });
+      if (latest && now.getTime() - latest.createdAt.getTime() < quietMs) return null;
+    }
     if (rest.length > 0) {
       await tx.fit.updateMany({
         where: { id: { in: rest.map((r) => r.id) }, status: 'queued' },
@@ -542,7 +561,7 @@ async function finishWithStatus(db: Db, fitId: string, status: 'failed' | 'cance
 /** Runs at most one queued fit of the project. Returns null when there was nothing to run. */
 export async function processProject(db: Db, projectId: string, options: ProcessOptions): Promise<ProcessOutcome | null> {
   const clock = options.clock ?? systemClock;
-  const claimed = await claim(db, projectId, clock());
+  const claimed = await claim(db, projectId, clock(), options.followUpQuietMs ?? FOLLOW_UP_QUIET_MS);
   if (!claimed) return null;
   return runClaimedFit(db, projectId, claimed, options);
 }
@@ -723,11 +742,12 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     // standings: both after the queue is refreshed, so neither delays it.
     const model = encodeModel(fit, input.sampleIds, preprocessorOverride, audit ? { oof: audit.outOfFold.decision, pivotDelta: pivotDeltas(fit) } : null);
     await serialWrite(db, () => db.fit.update({ where: { id: fitId }, data: { model } }));
-    await insertStandings(db, provider, fitId, n, records.rowAt);
+    const writer = options.standingsWriter ?? inlineStandingsWriter(db);
+    await writer.write(fitId, records.columns());
     await serialWrite(db, () => db.fit.update({ where: { id: fitId }, data: { progress: 1 } }));
     const standingsMs = performance.now() - standingsStart;
     try {
-      await pruneStandings(db, projectId);
+      await writer.prune(await fitsToPrune(db, projectId));
     } catch (e) {
       log(`could not prune old standings of project ${projectId}: ${e instanceof Error ? e.message : String(e)}`);
     }

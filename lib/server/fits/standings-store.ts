@@ -100,9 +100,18 @@ export async function insertStandings(client: Db, provider: Provider, fitId: str
     }
     await serialWrite(client, () => client.$executeRawUnsafe(head + tuples.join(', '), ...values));
     written += end - start;
-    await new Promise<void>((resolve) => setImmediate(resolve));
+    await pause(provider);
   }
   return written;
+}
+
+/**
+ * Between two batch statements: a turn of the event loop, and on SQLite also a few milliseconds with
+ * the write lock free, so that writers in other processes (whose busy handler polls with sleeps)
+ * are not starved by a long run of back-to-back batches.
+ */
+function pause(provider: Provider): Promise<void> {
+  return new Promise<void>((resolve) => (provider === 'sqlite' ? setTimeout(resolve, 3) : setImmediate(resolve)));
 }
 
 /** The primary key of a fit's i-th standing. */
@@ -114,11 +123,11 @@ export function standingId(fitId: string, i: number): string {
 export const STANDINGS_RETENTION = 5;
 
 /**
- * Drops the standings of older fits (their metrics and model stay): all but the newest
- * STANDINGS_RETENTION done fits and the newest done full pass, and every superseded, failed or
- * cancelled fit. Deletes in chunks so no single statement holds the database for long.
+ * The fits of a project whose standings are no longer kept: all but the newest STANDINGS_RETENTION
+ * done fits and the newest done full pass (their metrics and models stay), and every superseded,
+ * failed or cancelled fit that has standings.
  */
-export async function pruneStandings(client: Db, projectId: string): Promise<number> {
+export async function fitsToPrune(client: Db, projectId: string): Promise<string[]> {
   const done = await client.fit.findMany({
     where: { projectId, status: 'done' },
     orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }],
@@ -128,25 +137,5 @@ export async function pruneStandings(client: Db, projectId: string): Promise<num
   const newestFull = done.find((f) => (f.metrics ?? '').includes('"pass":"full"'));
   if (newestFull) keep.add(newestFull.id);
   const candidates = await client.fit.findMany({ where: { projectId, id: { notIn: [...keep] }, standings: { some: {} } }, select: { id: true } });
-  let removed = 0;
-  for (const fit of candidates) {
-    // Rows written by insertStandings: delete by contiguous id ranges (cheap on the primary key).
-    for (let lo = 0; ; lo += 2000) {
-      const r = await serialWrite(client, () =>
-        client.standing.deleteMany({ where: { fitId: fit.id, id: { gte: standingId(fit.id, lo), lt: standingId(fit.id, lo + 2000) } } }),
-      );
-      removed += r.count;
-      await new Promise<void>((resolve) => setImmediate(resolve));
-      if (r.count === 0) break;
-    }
-    // Anything else (rows with other ids): in chunks.
-    for (;;) {
-      const chunk = await client.standing.findMany({ where: { fitId: fit.id }, select: { id: true }, take: 2000 });
-      if (chunk.length === 0) break;
-      const r = await serialWrite(client, () => client.standing.deleteMany({ where: { id: { in: chunk.map((c) => c.id) } } }));
-      removed += r.count;
-      await new Promise<void>((resolve) => setImmediate(resolve));
-    }
-  }
-  return removed;
+  return candidates.map((c) => c.id);
 }

@@ -24,7 +24,8 @@ interface State {
   /** projectId → fingerprint sent to the worker */
   sent: Map<string, string>;
   cache: Map<string, Neighbour[]>;
-  inflight: Map<string, Promise<Neighbour[]>>;
+  /** searches under way; `urgent` ones serve a reviewer who is waiting */
+  inflight: Map<string, { promise: Promise<Neighbour[]>; urgent: boolean }>;
 }
 
 const holder = globalThis as typeof globalThis & { __borderlineNeighbours?: State };
@@ -66,7 +67,7 @@ function keyOf(m: FeatureMatrix, scaling: Scaling, row: number): string {
   return `${m.projectId}|${m.fingerprint}|${scaling}|${row}`;
 }
 
-async function search(m: FeatureMatrix, scaling: Scaling, rows: number[]): Promise<Neighbour[][]> {
+async function search(m: FeatureMatrix, scaling: Scaling, rows: number[], urgent: boolean): Promise<Neighbour[][]> {
   const w = worker();
   if (!w) return rows.map((r) => nearestNeighbours(m, scaling, r, K));
   const st = state();
@@ -77,7 +78,7 @@ async function search(m: FeatureMatrix, scaling: Scaling, rows: number[]): Promi
   const id = st.nextId++;
   return new Promise<Neighbour[][]>((resolve, reject) => {
     st.pending.set(id, { resolve, reject });
-    w.postMessage({ type: 'query', id, projectId: m.projectId, fingerprint: m.fingerprint, scaling, rows, k: K });
+    w.postMessage({ type: 'query', id, projectId: m.projectId, fingerprint: m.fingerprint, scaling, rows, k: K, urgent });
   }).catch(() => rows.map((r) => nearestNeighbours(m, scaling, r, K)));
 }
 
@@ -93,14 +94,15 @@ export async function neighboursOfRow(m: FeatureMatrix, scaling: Scaling, row: n
   const key = keyOf(m, scaling, row);
   const hit = st.cache.get(key);
   if (hit) return hit;
+  // A prefetch of the same row may sit behind other prefetches in the worker: search again, urgently.
   const running = st.inflight.get(key);
-  if (running) return running;
-  const p = search(m, scaling, [row]).then((r) => {
+  if (running?.urgent) return running.promise;
+  const p = search(m, scaling, [row], true).then((r) => {
     remember(key, r[0]);
     st.inflight.delete(key);
     return r[0];
   });
-  st.inflight.set(key, p);
+  st.inflight.set(key, { promise: p, urgent: true });
   return p;
 }
 
@@ -109,15 +111,17 @@ export function prefetchNeighbours(m: FeatureMatrix, scaling: Scaling, rows: num
   const st = state();
   const todo = rows.filter((r) => !st.cache.has(keyOf(m, scaling, r)) && !st.inflight.has(keyOf(m, scaling, r)));
   if (todo.length === 0) return;
-  const p = search(m, scaling, todo);
-  for (const [i, r] of todo.entries()) {
+  // One query per row, so a reviewer's urgent search waits for at most one prefetched row.
+  for (const r of todo) {
     const key = keyOf(m, scaling, r);
-    const one = p.then((res) => {
-      remember(key, res[i]);
-      st.inflight.delete(key);
-      return res[i];
+    const one = search(m, scaling, [r], false).then((res) => {
+      remember(key, res[0]);
+      if (!st.inflight.get(key)?.urgent) st.inflight.delete(key);
+      return res[0];
     });
-    one.catch(() => st.inflight.delete(key));
-    st.inflight.set(key, one);
+    one.catch(() => {
+      if (!st.inflight.get(key)?.urgent) st.inflight.delete(key);
+    });
+    st.inflight.set(key, { promise: one, urgent: false });
   }
 }

@@ -72,13 +72,36 @@ export interface WriteTxOptions {
 
 let sqliteTail: Promise<void> = Promise.resolve();
 
+const gateHolder = globalThis as typeof globalThis & { __borderlineWriterGate?: Int32Array };
+
+/**
+ * A counter shared with background writer threads (SharedArrayBuffer): the number of this thread's
+ * writes waiting or running on SQLite. A writer thread with its own connection (the standings
+ * writer) checks it before each batch and waits while it is non-zero, so the requests of reviewers
+ * get the database's single write lock first instead of polling for it on SQLite's busy handler.
+ */
+export function writerGate(): Int32Array {
+  gateHolder.__borderlineWriterGate ??= new Int32Array(new SharedArrayBuffer(4));
+  return gateHolder.__borderlineWriterGate;
+}
+
+async function gated<T>(fn: () => Promise<T>): Promise<T> {
+  const gate = writerGate();
+  Atomics.add(gate, 0, 1);
+  try {
+    return await fn();
+  } finally {
+    Atomics.sub(gate, 0, 1);
+  }
+}
+
 /**
  * A write outside a transaction (bulk inserts, chunked deletes): on SQLite it takes its turn on the
  * same mutex as writeTx, so it never runs on the shared connection while another request's
  * transaction is open there; on PostgreSQL it runs as is.
  */
 export function serialWrite<T>(db: Db, fn: () => Promise<T>): Promise<T> {
-  return providerOf(db) === 'sqlite' ? sqliteTurn(fn) : fn();
+  return providerOf(db) === 'sqlite' ? gated(() => sqliteTurn(fn)) : fn();
 }
 
 /** Runs `fn` when every earlier SQLite write transaction of this process has finished. */
@@ -111,7 +134,7 @@ export async function writeTx<T>(db: Db, lockKeys: readonly LockKey[], fn: (tx: 
   let lastError: unknown;
   for (let attempt = 0; attempt < attempts; attempt++) {
     try {
-      return await (sqlite ? sqliteTurn(once) : once());
+      return await (sqlite ? gated(() => sqliteTurn(once)) : once());
     } catch (e) {
       if (!isTransient(e)) throw e;
       lastError = e;

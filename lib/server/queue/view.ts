@@ -169,9 +169,10 @@ async function classNames(db: Db, projectId: string): Promise<string[]> {
 }
 
 /** Searches neighbours ahead for the items "next" is likely to hand out soon. */
-async function prefetchUpcoming(db: Db, projectId: string, scaling: Scaling): Promise<void> {
+async function prefetchUpcoming(db: Db, projectId: string, scaling: Scaling, now: Date): Promise<void> {
+  // The items "next" hands out next: awaiting votes and not under someone's live lease.
   const upcoming = await db.queueItem.findMany({
-    where: { projectId, state: { in: ['open', 'one-vote'] } },
+    where: { projectId, state: { in: ['open', 'one-vote'] }, OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }] },
     orderBy: [{ state: 'asc' }, { suspicion: 'desc' }, { id: 'asc' }],
     take: 24,
     select: { sampleId: true },
@@ -197,7 +198,7 @@ export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: 
     standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand),
     neighboursOf(db, project.id, item.sampleId, settings.scale),
   ]);
-  void prefetchUpcoming(db, project.id, settings.scale).catch(() => undefined);
+  void prefetchUpcoming(db, project.id, settings.scale, nowOf(deps)).catch(() => undefined);
   return {
     itemId: item.id,
     round: item.round,

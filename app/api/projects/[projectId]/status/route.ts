@@ -12,7 +12,7 @@ export const dynamic = 'force-dynamic';
 export const GET = defineRoute(
   { name: 'queueStatus', input: ProjectRefInput, role: 'member', resource: (i) => ({ projectId: i.projectId }) },
   async (input, caller) => {
-    void ensureFitWorker(caller.db).catch(() => undefined);
+    void ensureFitWorker().catch(() => undefined);
     return queueBoard(
       { db: caller.db, clock: () => caller.now },
       caller.scope,

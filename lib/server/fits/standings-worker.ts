@@ -1,0 +1,170 @@
+/**
+ * Worker-thread entry that stores and prunes standings over its own database connection (started
+ * by standings-writer.ts; not imported by anything else). 100k rows per refit then cost the server
+ * thread nothing but handing over a few typed arrays: no row objects, no statement parameters, no
+ * synchronous SQLite calls on the thread that answers requests.
+ *
+ * workerData: { provider: 'sqlite', file, gate } | { provider: 'postgresql', url }
+ * SQLite has one write lock per database: before each batch the worker waits while the server
+ * thread has writes waiting or running (`gate`, see lib/server/queue/tx.ts writerGate), so reviewers'
+ * votes and claims go first.
+ * Protocol:
+ *   ← { type: 'write', id, fitId, rows: StandingColumns }   → { type: 'done', id, count }
+ *   ← { type: 'prune', id, fitIds: string[] }                → { type: 'done', id, count }
+ *   → { type: 'error', id, message }
+ * Between batches the worker pauses a few milliseconds with no lock held, so other writers (the
+ * server's own connection, other processes) get their turn.
+ */
+import { parentPort, workerData } from 'node:worker_threads';
+import Database from 'better-sqlite3';
+import pg from 'pg';
+import { flagNames, supportKindName } from '../../margin/standings';
+
+export interface StandingColumns {
+  readonly sampleIds: readonly string[];
+  readonly classes: readonly string[];
+  readonly margin: Float64Array;
+  readonly distance: Float64Array;
+  readonly slack: Float64Array;
+  readonly alpha: Float64Array;
+  /** SUPPORT_* code per sample */
+  readonly support: Uint8Array;
+  /** NaN = not computed */
+  readonly oofMargin: Float64Array;
+  /** FLAG_* mask per sample */
+  readonly flags: Uint8Array;
+  readonly suspicion: Float64Array;
+  /** class index per sample */
+  readonly predicted: Int32Array;
+  /** per sample: boundaries × [decision, out-of-fold decision] as float32 */
+  readonly detail: Float32Array;
+  readonly detailWidth: number;
+}
+
+type Config = { provider: 'sqlite'; file: string; gate?: Int32Array } | { provider: 'postgresql'; url: string };
+type Message = { type: 'write'; id: number; fitId: string; rows: StandingColumns } | { type: 'prune'; id: number; fitIds: string[] };
+
+// The server connection's PRAGMAs (lib/server/db.ts SQLITE_PRAGMAS), repeated here so this thread
+// does not load the ORM; busy_timeout comes from the constructor's `timeout`.
+const SQLITE_PRAGMAS = ['PRAGMA journal_mode = WAL', 'PRAGMA foreign_keys = ON', 'PRAGMA synchronous = FULL'];
+const BATCH = 500;
+const PAUSE_MS = 3;
+const COLUMNS = ['id', 'fitId', 'sampleId', 'margin', 'distance', 'slack', 'alpha', 'svKind', 'oofMargin', 'flags', 'suspicion', 'predicted', 'detail'];
+
+const port = parentPort;
+if (!port) throw new Error('lib/server/fits/standings-worker.ts must run in a worker thread');
+const config = workerData as Config;
+
+function finite(v: number): number {
+  if (Number.isNaN(v)) return 0;
+  if (v === Infinity) return 1e30;
+  if (v === -Infinity) return -1e30;
+  return v;
+}
+
+const standingId = (fitId: string, i: number) => `${fitId}:${i.toString().padStart(8, '0')}`;
+const sleep = (ms: number) => new Promise<void>((r) => setTimeout(r, ms));
+
+/** A short breather after every batch, then wait until the server thread has no write pending. */
+async function pause(): Promise<void> {
+  await sleep(PAUSE_MS);
+  const gate = config.provider === 'sqlite' ? config.gate : undefined;
+  for (let waited = 0; gate && Atomics.load(gate, 0) > 0 && waited < 10_000; waited += 2) await sleep(2);
+}
+
+function rowValues(fitId: string, r: StandingColumns, i: number): unknown[] {
+  const w = r.detailWidth;
+  const detail = Buffer.from(r.detail.buffer, r.detail.byteOffset + i * w * 4, w * 4);
+  return [
+    standingId(fitId, i),
+    fitId,
+    r.sampleIds[i],
+    finite(r.margin[i]),
+    finite(r.distance[i]),
+    finite(r.slack[i]),
+    finite(r.alpha[i]),
+    supportKindName(r.support[i]),
+    Number.isNaN(r.oofMargin[i]) ? null : finite(r.oofMargin[i]),
+    flagNames(r.flags[i]).join(','),
+    finite(r.suspicion[i]),
+    r.classes[r.predicted[i]] ?? '',
+    Buffer.from(detail),
+  ];
+}
+
+let sqlite: Database.Database | null = null;
+let pool: pg.Pool | null = null;
+
+function openSqlite(): Database.Database {
+  if (!sqlite) {
+    if (config.provider !== 'sqlite') throw new Error('not a SQLite configuration');
+    sqlite = new Database(config.file, { timeout: 5000 });
+    for (const p of SQLITE_PRAGMAS) sqlite.exec(p);
+  }
+  return sqlite;
+}
+
+function openPool(): pg.Pool {
+  if (!pool) {
+    if (config.provider !== 'postgresql') throw new Error('not a PostgreSQL configuration');
+    pool = new pg.Pool({ connectionString: config.url, max: 1 });
+    pool.on('error', () => undefined);
+  }
+  return pool;
+}
+
+async function write(fitId: string, r: StandingColumns): Promise<number> {
+  const n = r.sampleIds.length;
+  for (let start = 0; start < n; start += BATCH) {
+    const end = Math.min(n, start + BATCH);
+    const values: unknown[] = [];
+    for (let i = start; i < end; i++) values.push(...rowValues(fitId, r, i));
+    const count = end - start;
+    if (config.provider === 'sqlite') {
+      const tuple = `(${COLUMNS.map(() => '?').join(', ')})`;
+      openSqlite()
+        .prepare(`INSERT INTO "Standing" (${COLUMNS.map((c) => `"${c}"`).join(', ')}) VALUES ${Array(count).fill(tuple).join(', ')}`)
+        .run(...values);
+    } else {
+      const tuples: string[] = [];
+      for (let k = 0; k < count; k++) tuples.push(`(${COLUMNS.map((_, c) => `$${k * COLUMNS.length + c + 1}`).join(', ')})`);
+      await openPool().query(`INSERT INTO "Standing" (${COLUMNS.map((c) => `"${c}"`).join(', ')}) VALUES ${tuples.join(', ')}`, values);
+    }
+    await pause();
+  }
+  return n;
+}
+
+async function prune(fitIds: readonly string[]): Promise<number> {
+  let removed = 0;
+  for (const fitId of fitIds) {
+    for (let lo = 0; ; lo += BATCH) {
+      const args = [fitId, standingId(fitId, lo), standingId(fitId, lo + BATCH)];
+      let changed: number;
+      if (config.provider === 'sqlite') {
+        changed = openSqlite().prepare('DELETE FROM "Standing" WHERE "fitId" = ? AND "id" >= ? AND "id" < ?').run(...args).changes;
+      } else {
+        changed = (await openPool().query('DELETE FROM "Standing" WHERE "fitId" = $1 AND "id" >= $2 AND "id" < $3', args)).rowCount ?? 0;
+      }
+      removed += changed;
+      await pause();
+      if (changed === 0) break;
+    }
+    // Rows stored under other ids (older formats): whatever is left of the fit, in one statement.
+    if (config.provider === 'sqlite') removed += openSqlite().prepare('DELETE FROM "Standing" WHERE "fitId" = ?').run(fitId).changes;
+    else removed += (await openPool().query('DELETE FROM "Standing" WHERE "fitId" = $1', [fitId])).rowCount ?? 0;
+  }
+  return removed;
+}
+
+let chain: Promise<unknown> = Promise.resolve();
+port.on('message', (m: Message) => {
+  chain = chain.then(async () => {
+    try {
+      const count = m.type === 'write' ? await write(m.fitId, m.rows) : await prune(m.fitIds);
+      port.postMessage({ type: 'done', id: m.id, count });
+    } catch (e) {
+      port.postMessage({ type: 'error', id: m.id, message: e instanceof Error ? e.message : String(e) });
+    }
+  });
+});
