@@ -108,6 +108,16 @@ export function QueueScreen({
     void next();
   }, [item, canVote, busy, emptyKey, next]);
 
+  // An item shown before its fit's standings were stored: fetch it again once they are.
+  const fitKey = `${board.status.current?.id ?? ''}:${board.status.current?.progress ?? 0}`;
+  const standingMissing = item !== undefined && item !== null && item.standing === null;
+  const lastFitKey = useRef(fitKey);
+  useEffect(() => {
+    if (lastFitKey.current === fitKey) return;
+    lastFitKey.current = fitKey;
+    if (standingMissing && !busy) void next();
+  }, [fitKey, standingMissing, busy, next]);
+
   // Keep the lease alive while an item is on screen.
   useEffect(() => {
     if (!item) return;
