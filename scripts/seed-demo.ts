@@ -9,6 +9,7 @@ import { createDb } from '../lib/server/db';
 import { DEMO_PROJECT, DEMO_TEAM_NAME, DEMO_USERS } from '../lib/server/demo/constants';
 import { generateDemo } from '../lib/server/demo/generate';
 import { seedDemo } from '../lib/server/demo/seed';
+import { runInitialFit } from '../lib/server/fits';
 import { databaseConfigFrom, exitOnStartupError, prepareDatabase } from '../lib/server/startup';
 
 const reset = process.argv.includes('--reset');
@@ -31,6 +32,14 @@ try {
         `Seeded "${DEMO_TEAM_NAME}" / "${DEMO_PROJECT.name}" into ${prepared.target}: ${result.samples} samples, ` +
           `${dataset.classes.length} classes, ${result.planted} planted label errors (${Date.now() - started} ms).`,
       );
+    }
+    // The demo opens on a fitted boundary and a filled queue: fit the current revision now unless
+    // the project already has a fit (idempotent, like the rest of the seed).
+    const project = await client.project.findFirst({ where: { name: DEMO_PROJECT.name, team: { name: DEMO_TEAM_NAME } }, select: { id: true } });
+    if (project) {
+      const fitStarted = Date.now();
+      const outcome = await runInitialFit(project.id, client);
+      if (outcome) console.log(`Fitted the demo's current revision (${Date.now() - fitStarted} ms).`);
     }
     console.log('Demo sign-ins:');
     for (const u of DEMO_USERS) console.log(`  ${u.role.padEnd(8)}  ${u.email.padEnd(30)}  ${u.password}`);

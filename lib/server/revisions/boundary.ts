@@ -102,7 +102,7 @@ export async function boundaryData(
   const project = await scopedProject(client, scope.teamId, projectId);
   if (!project) return null;
   const fit = await client.fit.findFirst({
-    where: { projectId, status: 'done', model: { not: null }, standings: { some: {} } },
+    where: { projectId, status: 'done', model: { not: null }, progress: { gte: 1 }, standings: { some: {} } },
     orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }],
     select: { id: true, revisionNumber: true, model: true, metrics: true, settings: true },
   });

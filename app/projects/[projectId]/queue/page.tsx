@@ -1,5 +1,5 @@
 import type { Metadata } from 'next';
-import Link from 'next/link';
+import { ProjectNav } from '@/components/ProjectNav';
 import { QueueScreen } from '@/components/queue/QueueScreen';
 import { requireResourceForPage } from '@/lib/server/authz/page';
 import { db } from '@/lib/server/db';
@@ -19,20 +19,11 @@ export default async function QueuePage({ params }: { params: Promise<{ projectI
   const [header, board] = await Promise.all([queueProjectHeader(deps, access.scope, projectId), queueBoard(deps, access.scope, actor, projectId)]);
   return (
     <div className="space-y-4">
-      <div className="flex flex-wrap items-baseline justify-between gap-2">
+      <div className="space-y-3">
         <h1 className="text-2xl font-semibold">
           Queue <span className="text-base font-normal text-slate-600">· {header.name}</span>
         </h1>
-        <nav aria-label="Project" className="flex gap-4 text-sm">
-          <Link href={`/projects/${projectId}`} className="underline">
-            Overview
-          </Link>
-          {actor.role === 'lead' && (
-            <Link href={`/projects/${projectId}/settings`} className="underline">
-              Settings
-            </Link>
-          )}
-        </nav>
+        <ProjectNav projectId={projectId} active="queue" showSettings={actor.role === 'lead'} />
       </div>
       <QueueScreen projectId={projectId} role={actor.role} classes={header.classes} initialBoard={board} />
     </div>

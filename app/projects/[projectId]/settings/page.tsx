@@ -1,5 +1,5 @@
 import type { Metadata } from 'next';
-import Link from 'next/link';
+import { ProjectNav } from '@/components/ProjectNav';
 import { SettingsForm } from '@/components/queue/SettingsForm';
 import { roleAtLeast } from '@/lib/domain';
 import { requireResourceForPage } from '@/lib/server/authz/page';
@@ -17,18 +17,11 @@ export default async function SettingsPage({ params }: { params: Promise<{ proje
   const isLead = roleAtLeast(access.membership.role, 'lead');
   return (
     <div className="space-y-4">
-      <div className="flex flex-wrap items-baseline justify-between gap-2">
+      <div className="space-y-3">
         <h1 className="text-2xl font-semibold">
           Settings <span className="text-base font-normal text-slate-600">· {header.name}</span>
         </h1>
-        <nav aria-label="Project" className="flex gap-4 text-sm">
-          <Link href={`/projects/${projectId}`} className="underline">
-            Overview
-          </Link>
-          <Link href={`/projects/${projectId}/queue`} className="underline">
-            Queue
-          </Link>
-        </nav>
+        <ProjectNav projectId={projectId} active="settings" showSettings={isLead} />
       </div>
       {isLead ? (
         <SettingsForm projectId={projectId} initial={header.settings} />
