@@ -3,21 +3,17 @@
  * so a server's event loop never runs a solver; `inlineEngine` runs on the calling thread (scripts
  * such as the demo seed, and tests that do not exercise threads).
  *
- * The worker speaks the protocol of lib/margin/worker.ts (see lib/margin/run-in-worker.ts, whose
- * logic this mirrors). It is started here rather than through `runInWorker` because the app's
- * server bundle must not contain run-in-worker.ts: its `new URL('./worker.ts', import.meta.url)` and
- * `createRequire(import.meta.url)` make the bundler trace the whole repository. Here the entry is a
- * path computed at run time from the working directory (the repository root for `next start`, the
- * scripts and the tests). Node 20 does not apply ESM loader hooks to a worker's entry module, so —
- * as run-in-worker.ts does — a .ts entry is started from a small CommonJS bootstrap that installs
- * tsx's require hook (resolved from that directory) and then requires the entry.
+ * Threads are started with the engine's worker client (lib/margin/worker-client.ts), which takes the
+ * entry as a path: the app's server bundle must not contain run-in-worker.ts, whose
+ * `new URL('./worker.ts', import.meta.url)` makes the bundler trace the whole repository. Here the
+ * entry is computed at run time from the working directory (the repository root for `next start`,
+ * the scripts and the tests).
  */
-import { createRequire } from 'node:module';
 import { join } from 'node:path';
 import { Worker } from 'node:worker_threads';
 import { auditSamples, type AuditResult } from '../../margin/audit';
 import { fitMargins, type EngineStage, type FitResult, type FitSettings, type LabelledData } from '../../margin/model';
-import type { EngineJob, JobResult, WorkerMessage, WorkerProgress } from '../../margin/run-in-worker';
+import { rebuildError, runJobInWorker, startTsWorker, type EngineJob, type JobResult, type WorkerProgress } from '../../margin/worker-client';
 import { selectModel, type SelectionOptions, type SelectionResult } from '../../margin/select';
 import { EngineInputError, FitCancelledError } from '../../margin/types';
 
@@ -36,65 +32,7 @@ export function engineWorkerPath(root: string = process.cwd()): string {
 }
 
 const CANCEL_GRACE_MS = 2000;
-
-/** CommonJS source that loads a .ts worker entry through tsx's require hook. */
-function tsBootstrap(entry: string): string {
-  const hook = createRequire(join(process.cwd(), 'package.json')).resolve('tsx/cjs');
-  return `require(${JSON.stringify(hook)});\nrequire(${JSON.stringify(entry)});\n`;
-}
-
-function rebuildError(name: string, message: string): Error {
-  if (name === 'FitCancelledError') return new FitCancelledError();
-  if (name === 'EngineInputError') return new EngineInputError(message);
-  const e = new Error(message);
-  e.name = name;
-  return e;
-}
-
-/** Starts a worker thread on a .ts (through tsx's require hook) or .js entry. */
-export function startTsWorker(entry: string, workerData: unknown): Worker {
-  return entry.endsWith('.ts') ? new Worker(tsBootstrap(entry), { eval: true, workerData }) : new Worker(entry, { workerData });
-}
-
-/** Runs one engine job in a fresh worker thread (protocol of lib/margin/worker.ts). */
-export function runJobInWorker<J extends EngineJob>(job: J, onProgress: EngineProgress, signal: AbortSignal | undefined, entry: string): Promise<JobResult<J>> {
-  if (signal?.aborted) return Promise.reject(new FitCancelledError());
-  const cancelFlag = new SharedArrayBuffer(4);
-  const flag = new Int32Array(cancelFlag);
-  const workerData = { job, cancelFlag, progressIntervalMs: 200 };
-  const worker = startTsWorker(entry, workerData);
-  return new Promise<JobResult<J>>((resolve, reject) => {
-    let settled = false;
-    let grace: NodeJS.Timeout | null = null;
-    const finish = (fn: () => void) => {
-      if (settled) return;
-      settled = true;
-      if (grace) clearTimeout(grace);
-      signal?.removeEventListener('abort', onAbort);
-      fn();
-    };
-    const onAbort = () => {
-      Atomics.store(flag, 0, 1);
-      worker.postMessage({ type: 'cancel' });
-      grace = setTimeout(() => {
-        void worker.terminate();
-        finish(() => reject(new FitCancelledError()));
-      }, CANCEL_GRACE_MS);
-    };
-    signal?.addEventListener('abort', onAbort, { once: true });
-    worker.on('message', (m: WorkerMessage) => {
-      if (m.type === 'progress') {
-        if (!settled) onProgress(m.progress);
-      } else if (m.type === 'result') {
-        finish(() => resolve(m.result as JobResult<J>));
-      } else {
-        finish(() => reject(rebuildError(m.name, m.message)));
-      }
-    });
-    worker.on('error', (e) => finish(() => reject(e)));
-    worker.on('exit', (code) => finish(() => reject(new Error(`engine worker exited with code ${code} before returning a result`))));
-  });
-}
+const WORKER_TIMING = { progressIntervalMs: 200, cancelGraceMs: CANCEL_GRACE_MS } as const;
 
 /** The refit service's own long-lived worker entry (fit-worker.ts). */
 export function fitWorkerPath(root: string = process.cwd()): string {
@@ -196,9 +134,9 @@ export function persistentWorkerEngine(entry: string = fitWorkerPath()): EngineR
 export function workerEngine(entry: string = engineWorkerPath()): EngineRunner {
   return {
     name: 'worker-thread',
-    audit: (data, settings, onProgress, signal) => runJobInWorker({ kind: 'audit', data, settings }, onProgress, signal, entry),
-    fit: (data, settings, onProgress, signal) => runJobInWorker({ kind: 'fit', data, settings }, onProgress, signal, entry),
-    select: (data, settings, options, onProgress, signal) => runJobInWorker({ kind: 'select', data, settings, options }, onProgress, signal, entry),
+    audit: (data, settings, onProgress, signal) => runJobInWorker({ kind: 'audit', data, settings }, { entry, onProgress, signal, ...WORKER_TIMING }),
+    fit: (data, settings, onProgress, signal) => runJobInWorker({ kind: 'fit', data, settings }, { entry, onProgress, signal, ...WORKER_TIMING }),
+    select: (data, settings, options, onProgress, signal) => runJobInWorker({ kind: 'select', data, settings, options }, { entry, onProgress, signal, ...WORKER_TIMING }),
   };
 }
 

@@ -14,7 +14,7 @@ import { flagNames, supportKindName } from '../../margin/standings';
 import type { Db } from '../db';
 import type { DatabaseConfig } from '../env';
 import { providerOf, serialWrite, writerGate } from '../queue/tx';
-import { startTsWorker } from './engine';
+import { startTsWorker } from '../../margin/worker-client';
 import type { StandingColumns } from './standings-worker';
 import { insertStandings, standingId, type StandingRow } from './standings-store';
 

@@ -7,7 +7,7 @@
  */
 import { join } from 'node:path';
 import type { Worker } from 'node:worker_threads';
-import { startTsWorker } from '../fits/engine';
+import { startTsWorker } from '../../margin/worker-client';
 import type { FeatureMatrix } from '../fits/data';
 import { nearestNeighbours, type Neighbour, type Scaling } from './neighbours';
 
