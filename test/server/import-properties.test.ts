@@ -3,7 +3,7 @@
 // refused with exactly one problem naming that row and column, and that the database is the same
 // as before (every row of every table, read with the raw driver; the import history and the
 // audit log gain one "failed" entry by design and are compared apart).
-// Also: any valid file imports, and what is stored equals what was generated.
+// Also: every valid file imports, and what is stored equals what was generated.
 
 import fc from 'fast-check';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';

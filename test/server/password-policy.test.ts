@@ -106,7 +106,7 @@ describe('password policy (ASVS 5.0 V6.2)', () => {
     expect(checkNewPassword('tab\there-is-bad')).toEqual({ ok: false, message: PASSWORD_MESSAGES.controlCharacters });
   });
 
-  it('property: any accepted password has 8..128 characters and is returned NFKC-normalised', () => {
+  it('property: every accepted password has 8..128 characters and is returned NFKC-normalised', () => {
     fc.assert(
       fc.property(fc.string({ unit: 'grapheme', minLength: 0, maxLength: 140 }), (s) => {
         const r = checkNewPassword(s);

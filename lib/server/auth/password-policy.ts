@@ -4,7 +4,7 @@
  * - 6.2.1  at least 8 characters (LIMITS.passwordMin).
  * - 6.2.9  at least 64 characters allowed; we allow up to LIMITS.passwordMax (128) so that the
  *          Argon2id input stays bounded.
- * - 6.2.5  no composition rules: any character, spaces included, is accepted.
+ * - 6.2.5  no composition rules — every character, spaces included, is accepted.
  * - 6.2.4  rejected when on a list of common passwords: the 49k-entry "passwords-common"
  *          dictionary of @zxcvbn-ts/language-common (MIT), shipped with the project.
  * - 6.2.11 rejected when it is one of the context-specific words documented in
