@@ -24,9 +24,11 @@ ensureNodeModules();
 run('npm', ['run', '--silent', 'db:generate']);
 run('npm', ['run', '--silent', 'db:migrate']);
 run('npm', ['run', '--silent', 'db:seed']);
-run('npx', ['next', 'build']);
 const port = process.env.PORT ?? '3000';
-run('npx', ['next', 'start', '-p', port], {
+// `next build` also runs in production mode and renders pages that read the session.
+const production = {
   NEXTAUTH_SECRET: process.env.NEXTAUTH_SECRET ?? localSecret(),
   NEXTAUTH_URL: process.env.NEXTAUTH_URL ?? `http://localhost:${port}`,
-});
+};
+run('npx', ['next', 'build'], production);
+run('npx', ['next', 'start', '-p', port], production);
