@@ -427,18 +427,10 @@ function fitBoundary(
         ub[i] = 0;
         return solveBinary(problem, s, { signal: control.signal }, { upperBound: ub, warmStart: warm });
       },
-      {
-        threshold: s.pivotThreshold,
-        cap: s.pivotCap,
-        signal: control.signal,
-        onStep: (k, total) => control.onStage?.({ stage: 'pivots', step: k, of: total, label: spec.name }),
-      },
+      pivotOptions(spec, s, control),
     );
   }
-  const standings = computeStandings(
-    { y, decision: solution.decision, alpha: solution.alpha, upperBound: solution.upperBound, wNorm },
-    { nearBand: s.nearBand, marginTolerance: s.marginTolerance, pivots: pivots?.pivots },
-  );
+  const standings = standingsOf(y, solution, wNorm, s, pivots);
   return {
     positive: spec.positive,
     negative: spec.negative,
@@ -455,6 +447,24 @@ function fitBoundary(
     pivots,
     supportVectors: s.kernel.type === 'linear' ? null : packSupport(Xp, y, solution.alpha),
   };
+}
+
+/** Options of a boundary's pivot refits: the project's threshold and cap, progress as a stage. */
+function pivotOptions(spec: BoundarySpec, s: ResolvedFitSettings, control: EngineControl) {
+  return {
+    threshold: s.pivotThreshold,
+    cap: s.pivotCap,
+    signal: control.signal,
+    onStep: (k: number, total: number) => control.onStage?.({ stage: 'pivots', step: k, of: total, label: spec.name }),
+  };
+}
+
+/** Standings of every training sample against one fitted boundary. */
+function standingsOf(y: Int8Array, solution: BinarySolution, wNorm: number, s: ResolvedFitSettings, pivots: PivotReport | null) {
+  return computeStandings(
+    { y, decision: solution.decision, alpha: solution.alpha, upperBound: solution.upperBound, wNorm },
+    { nearBand: s.nearBand, marginTolerance: s.marginTolerance, pivots: pivots?.pivots },
+  );
 }
 
 function fitHardBoundary(problem: BinaryProblem, spec: BoundarySpec, s: ResolvedFitSettings, control: EngineControl): BoundaryResult {
@@ -476,18 +486,10 @@ function fitHardBoundary(problem: BinaryProblem, spec: BoundarySpec, s: Resolved
           if (!v.separable) throw new EngineInputError(`hard-margin refit without sample ${i} lost separability: ${v.reason}`);
           return v.solution;
         },
-        {
-          threshold: s.pivotThreshold,
-          cap: s.pivotCap,
-          signal: control.signal,
-          onStep: (k, total) => control.onStage?.({ stage: 'pivots', step: k, of: total, label: spec.name }),
-        },
+        pivotOptions(spec, s, control),
       );
     }
-    const standings = computeStandings(
-      { y, decision: solution.decision, alpha: solution.alpha, upperBound: solution.upperBound, wNorm },
-      { nearBand: s.nearBand, marginTolerance: s.marginTolerance, pivots: pivots?.pivots },
-    );
+    const standings = standingsOf(y, solution, wNorm, s, pivots);
     return {
       positive: spec.positive,
       negative: spec.negative,
