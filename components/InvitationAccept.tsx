@@ -1,13 +1,12 @@
 'use client';
 
-import { signIn } from 'next-auth/react';
 import Link from 'next/link';
-import { useRouter } from 'next/navigation';
-import { useState, type FormEvent } from 'react';
+import type { FormEvent } from 'react';
 import { acceptInvitation } from '@/app/actions/accept-invitation';
 import { signUp } from '@/app/actions/sign-up';
 import { LIMITS, PASSWORD_HINT, ROLE_LABEL, SIGN_IN_MESSAGES, type Role } from '@/lib/domain';
 import { buttonClass, Field, Notice, PasswordField } from './form-parts';
+import { useAccountCreation } from './useAccountCreation';
 
 type Props = {
   token: string;
@@ -19,10 +18,7 @@ type Props = {
 
 /** Joining a team from an invitation link: with the signed-in account, or with a new one. */
 export function InvitationAccept({ token, teamName, role, signedInAs }: Props) {
-  const router = useRouter();
-  const [error, setError] = useState<string | null>(null);
-  const [fields, setFields] = useState<Record<string, string>>({});
-  const [busy, setBusy] = useState(false);
+  const { error, setError, fields, busy, setBusy, createAndSignIn, router } = useAccountCreation();
 
   async function join() {
     setBusy(true);
@@ -51,24 +47,7 @@ export function InvitationAccept({ token, teamName, role, signedInAs }: Props) {
       email: String(form.get('email') ?? ''),
       password: String(form.get('password') ?? ''),
     };
-    setBusy(true);
-    setError(null);
-    setFields({});
-    try {
-      const result = await signUp(input);
-      if (!result.ok) {
-        setError(result.error);
-        setFields(result.fields ?? {});
-        return;
-      }
-      const signedIn = await signIn('credentials', { redirect: false, email: result.data.email, password: input.password });
-      router.replace(signedIn && !signedIn.error ? '/' : '/signin');
-      router.refresh();
-    } catch {
-      setError(SIGN_IN_MESSAGES.failed);
-    } finally {
-      setBusy(false);
-    }
+    await createAndSignIn(() => signUp(input), input.password);
   }
 
   if (signedInAs) {

@@ -1,18 +1,14 @@
 'use client';
 
-import { signIn } from 'next-auth/react';
-import { useRouter } from 'next/navigation';
-import { useState, type FormEvent } from 'react';
+import type { FormEvent } from 'react';
 import { completeSetup } from '@/app/actions/complete-setup';
-import { LIMITS, PASSWORD_HINT, SIGN_IN_MESSAGES } from '@/lib/domain';
+import { LIMITS, PASSWORD_HINT } from '@/lib/domain';
 import { buttonClass, Field, Notice, PasswordField } from './form-parts';
+import { useAccountCreation } from './useAccountCreation';
 
 /** First run: the first account and its team. */
 export function SetupForm() {
-  const router = useRouter();
-  const [error, setError] = useState<string | null>(null);
-  const [fields, setFields] = useState<Record<string, string>>({});
-  const [busy, setBusy] = useState(false);
+  const { error, fields, busy, createAndSignIn } = useAccountCreation();
 
   async function onSubmit(event: FormEvent<HTMLFormElement>) {
     event.preventDefault();
@@ -23,24 +19,7 @@ export function SetupForm() {
       email: String(form.get('email') ?? ''),
       password: String(form.get('password') ?? ''),
     };
-    setBusy(true);
-    setError(null);
-    setFields({});
-    try {
-      const result = await completeSetup(input);
-      if (!result.ok) {
-        setError(result.error);
-        setFields(result.fields ?? {});
-        return;
-      }
-      const signedIn = await signIn('credentials', { redirect: false, email: result.data.email, password: input.password });
-      router.replace(signedIn && !signedIn.error ? '/' : '/signin');
-      router.refresh();
-    } catch {
-      setError(SIGN_IN_MESSAGES.failed);
-    } finally {
-      setBusy(false);
-    }
+    await createAndSignIn(() => completeSetup(input), input.password);
   }
 
   return (
