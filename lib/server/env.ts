@@ -54,6 +54,28 @@ const variables = z.object({
     .min(0, { error: 'must be 0 or more' })
     .max(5, { error: 'must be at most 5' })
     .default(0),
+  /**
+   * Where background work (refits, imports) runs. `auto`: in this process on SQLite, through the
+   * PostgreSQL job system (pg-boss; `npm run worker` processes) on PostgreSQL. `in-process` keeps it
+   * in the app process on PostgreSQL too (one app instance only); `job-system` needs PostgreSQL.
+   */
+  BORDERLINE_JOBS: z
+    .enum(['auto', 'in-process', 'job-system'], { error: 'must be auto, in-process or job-system' })
+    .default('auto'),
+  /** A running fit whose worker has not given a sign of life for this long is run again elsewhere. */
+  BORDERLINE_FIT_LEASE_SECONDS: z.coerce
+    .number({ error: 'must be a whole number of seconds' })
+    .int({ error: 'must be a whole number of seconds' })
+    .min(3, { error: 'must be at least 3 (seconds)' })
+    .max(3600, { error: 'must be at most 3600 (one hour)' })
+    .default(30),
+  /** Fits each `npm run worker` process runs at the same time. */
+  BORDERLINE_WORKER_CONCURRENCY: z.coerce
+    .number({ error: 'must be a whole number' })
+    .int({ error: 'must be a whole number' })
+    .min(1, { error: 'must be at least 1' })
+    .max(16, { error: 'must be at most 16' })
+    .default(1),
 });
 
 export type RawEnv = z.infer<typeof variables>;
@@ -83,6 +105,8 @@ export type Env = Omit<RawEnv, 'NEXTAUTH_SECRET'> & {
   dataDir: string;
   database: DatabaseConfig;
   isProduction: boolean;
+  /** BORDERLINE_JOBS resolved against the database. */
+  jobs: 'in-process' | 'job-system';
 };
 
 /** A configuration problem. `variable` names the environment variable at fault. */
@@ -184,7 +208,11 @@ function derive(raw: RawEnv, root: string): Env {
     secret = loadOrCreateLocalSecret(dataDir);
     secretSource = 'data-dir';
   }
-  return { ...raw, NEXTAUTH_SECRET: secret, secretSource, dataDir, database, isProduction };
+  if (raw.BORDERLINE_JOBS === 'job-system' && database.provider !== 'postgresql') {
+    throw new ConfigError('BORDERLINE_JOBS', 'is job-system, which needs a PostgreSQL DATABASE_URL (the embedded database runs background work in-process)');
+  }
+  const jobs = raw.BORDERLINE_JOBS === 'auto' ? (database.provider === 'postgresql' ? 'job-system' : 'in-process') : raw.BORDERLINE_JOBS;
+  return { ...raw, NEXTAUTH_SECRET: secret, secretSource, dataDir, database, isProduction, jobs };
 }
 
 /**

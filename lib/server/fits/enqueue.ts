@@ -5,6 +5,7 @@
  */
 import { readProjectSettings } from '../../domain-queue';
 import type { Db, DbTx } from '../db';
+import { writeTx } from '../queue/tx';
 
 /** The settings snapshot a fit runs with: the project's settings, complete with defaults. */
 export function settingsSnapshot(projectSettingsJson: string): string {
@@ -40,4 +41,25 @@ export async function enqueueCurrentRevisionTx(tx: Db | DbTx, projectId: string)
   if (!revision) return null;
   const fitId = await enqueueFitTx(tx, project, revision);
   return { fitId, revisionNumber: revision.number };
+}
+
+/**
+ * Queues a first fit for every project that has a revision but never had a fit (a seed script or a
+ * migration wrote its samples directly). Safe to run from several processes at once.
+ */
+export async function queueFirstFits(db: Db, log: (line: string) => void = () => {}): Promise<number> {
+  const projects = await db.project.findMany({ where: { fits: { none: {} }, revisions: { some: {} } }, select: { id: true } });
+  let queued = 0;
+  for (const p of projects) {
+    try {
+      const made = await writeTx(db, [{ table: 'Project', id: p.id }], async (tx) => {
+        if ((await tx.fit.count({ where: { projectId: p.id } })) > 0) return null;
+        return enqueueCurrentRevisionTx(tx, p.id);
+      });
+      if (made) queued++;
+    } catch (e) {
+      log(`could not queue the first fit of project ${p.id}: ${e instanceof Error ? e.message : String(e)}`);
+    }
+  }
+  return queued;
 }

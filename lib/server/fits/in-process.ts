@@ -14,12 +14,11 @@
  * - With `bootstrap`, start also queues a first fit for projects that have none (a seed script
  *   that wrote samples directly).
  * - On start, fits left `running` by a previous process are put back to `queued` (this queue
- *   assumes it is the only worker of its database; several workers need the job system of issue 8).
+ *   assumes it is the only worker of its database; several workers need the job system, job-system.ts).
  */
 import type { Db } from '../db';
 import type { Clock } from '../queue/context';
-import { writeTx } from '../queue/tx';
-import { enqueueCurrentRevisionTx } from './enqueue';
+import { queueFirstFits } from './enqueue';
 import type { EngineRunner } from './engine';
 import type { StandingsWriter } from './standings-writer';
 import type { FitJobQueue, FitRequest } from './jobs';
@@ -110,17 +109,7 @@ export class InProcessFitQueue implements FitJobQueue {
 
   /** Projects that never had a fit (e.g. written by a seed script) get one of their current revision. */
   async #bootstrap(): Promise<void> {
-    const projects = await this.#db.project.findMany({ where: { fits: { none: {} }, revisions: { some: {} } }, select: { id: true } });
-    for (const p of projects) {
-      try {
-        await writeTx(this.#db, [{ table: 'Project', id: p.id }], async (tx) => {
-          if ((await tx.fit.count({ where: { projectId: p.id } })) > 0) return null;
-          return enqueueCurrentRevisionTx(tx, p.id);
-        });
-      } catch (e) {
-        this.#options.log?.(`could not queue the first fit of project ${p.id}: ${e instanceof Error ? e.message : String(e)}`);
-      }
-    }
+    await queueFirstFits(this.#db, (line) => this.#options.log?.(line));
   }
 
   async #scan(): Promise<void> {

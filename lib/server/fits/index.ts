@@ -16,6 +16,8 @@ import { writeTx } from '../queue/tx';
 import { enqueueCurrentRevisionTx } from './enqueue';
 import { inlineEngine, persistentWorkerEngine, type EngineRunner } from './engine';
 import { InProcessFitQueue } from './in-process';
+import { JobSystemFitQueue } from './job-system';
+import { appJobSystem } from '../jobs/app';
 import { currentFitJobQueue, setFitJobQueue, type FitJobQueue } from './jobs';
 import { processProject, type ProcessOutcome } from './run-fit';
 
@@ -23,6 +25,7 @@ export { notifyFitQueued, currentFitJobQueue, setFitJobQueue, type FitJobQueue, 
 export { enqueueFitTx, enqueueCurrentRevisionTx } from './enqueue';
 export { processProject, type ProcessOutcome } from './run-fit';
 export { InProcessFitQueue } from './in-process';
+export { JobSystemFitQueue, startFitJobWorker, type FitJobWorker, type FitJobWorkerOptions } from './job-system';
 export { inlineEngine, persistentWorkerEngine, workerEngine, type EngineRunner } from './engine';
 
 const holder = globalThis as typeof globalThis & { __borderlineFitWorkerStart?: Promise<FitJobQueue> };
@@ -36,6 +39,7 @@ export function ensureFitWorker(client?: Db, config?: DatabaseConfig): Promise<F
   const existing = currentFitJobQueue();
   if (existing && holder.__borderlineFitWorkerStart) return holder.__borderlineFitWorkerStart;
   if (existing) return Promise.resolve(existing);
+  if (client === undefined && env().jobs === 'job-system') return holder.__borderlineFitWorkerStart ?? ensureJobSystemQueue();
   const target = client ?? defaultDb();
   const writerConfig = config ?? (client === undefined ? env().database : undefined);
   const queue = new InProcessFitQueue(target, {
@@ -50,6 +54,23 @@ export function ensureFitWorker(client?: Db, config?: DatabaseConfig): Promise<F
     (e: unknown) => {
       console.error('[refit] the fit worker could not start', e);
       setFitJobQueue(null);
+      holder.__borderlineFitWorkerStart = undefined;
+      throw e;
+    },
+  );
+  return holder.__borderlineFitWorkerStart;
+}
+
+/** Job-system mode: this app instance sends refit jobs; `npm run worker` processes run them. */
+function ensureJobSystemQueue(): Promise<FitJobQueue> {
+  holder.__borderlineFitWorkerStart = appJobSystem().then(
+    (boss) => {
+      const queue = new JobSystemFitQueue(defaultDb(), boss);
+      setFitJobQueue(queue);
+      return queue;
+    },
+    (e: unknown) => {
+      console.error('[refit] could not reach the job system', e);
       holder.__borderlineFitWorkerStart = undefined;
       throw e;
     },

@@ -19,8 +19,8 @@
  * - in-process (in-process.ts, the default and the embedded-database mode): a poll loop in the
  *   server process with an immediate `enqueue` nudge; the engine runs in a worker thread, so no
  *   request waits for a fit.
- * - a PostgreSQL job system (issue 8) implements the same interface: `enqueue` sends a job keyed by
- *   project (singleton key → coalescing), workers call `processProject(db, projectId, engine)`.
+ * - the PostgreSQL job system (job-system.ts): `enqueue` sends a pg-boss job keyed by project (a
+ *   waiting job absorbs later requests); `npm run worker` processes call `processProject` with a lease.
  */
 export interface FitRequest {
   readonly projectId: string;
@@ -58,5 +58,11 @@ export function currentFitJobQueue(): FitJobQueue | null {
  */
 export async function notifyFitQueued(request: FitRequest): Promise<void> {
   const queue = currentFitJobQueue();
-  if (queue) await queue.enqueue(request);
+  if (!queue) return;
+  try {
+    await queue.enqueue(request);
+  } catch (e) {
+    // The Fit row is committed: a worker's sweep (or the in-process poll) still finds it.
+    console.error(`[refit] could not send the refit job of project ${request.projectId}: ${e instanceof Error ? e.message : String(e)}`);
+  }
 }

@@ -30,7 +30,7 @@ import type { FitResult, FitSettings, LabelledData, WarmStart } from '../../marg
 import { flagNames, supportKindName } from '../../margin/standings';
 import type { WorkerProgress } from '../../margin/run-in-worker';
 import { FitCancelledError } from '../../margin/types';
-import type { Db } from '../db';
+import type { Db, DbTx } from '../db';
 import { rebuildQueueTx, type QueueCandidate, type RebuildSummary } from '../queue/build';
 import { systemClock, type Clock } from '../queue/context';
 import { providerOf, serialWrite, writeTx } from '../queue/tx';
@@ -82,6 +82,19 @@ export interface ProcessOptions {
   /** called right after the completing transaction committed: the fit is current, its queue rebuilt */
   readonly onComplete?: (fit: { id: string; revisionNumber: number; pass: FitPass }) => void;
   readonly log?: (line: string) => void;
+  /**
+   * Several workers on one database (job-system mode): the claimed fit records the worker and a
+   * heartbeat every `heartbeatMs`; a running fit whose heartbeat is older than `staleMs` belongs to
+   * a stopped worker and is failed and queued again by the next claim. Without a lease (the
+   * in-process queue, the only worker of its database), a running fit always blocks the claim.
+   */
+  readonly lease?: FitLease;
+}
+
+export interface FitLease {
+  readonly workerId: string;
+  readonly heartbeatMs: number;
+  readonly staleMs: number;
 }
 
 export interface ProcessOutcome {
@@ -221,8 +234,6 @@ function parseMetrics(json: string | null): StoredMetrics {
 
 /** The carried out-of-fold values of the project's newest full pass with `key` (memory, else its model). */
 async function carriedFor(db: Db, projectId: string, key: string): Promise<Carried | null> {
-  const hit = carriedStore().get(projectId);
-  if (hit && hit.key === key) return hit;
   const fits = await db.fit.findMany({
     where: { projectId, status: 'done', model: { not: null } },
     orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }],
@@ -234,6 +245,9 @@ async function carriedFor(db: Db, projectId: string, key: string): Promise<Carri
     return m.pass === 'full' && m.carryKey === key && Array.isArray(m.classes);
   });
   if (!full) return null;
+  // Another worker process may have completed a newer full pass: trust the memory only for the newest.
+  const hit = carriedStore().get(projectId);
+  if (hit && hit.key === key && hit.fitId === full.id) return hit;
   const row = await db.fit.findUnique({ where: { id: full.id }, select: { model: true } });
   if (!row?.model) return null;
   let decoded;
@@ -527,10 +541,40 @@ function progressMapper(pass: FitPass, withSelection: boolean): (p: WorkerProgre
 /** A follow-up full pass waits until the project has had no new revision for this long. */
 export const FOLLOW_UP_QUIET_MS = 60_000;
 
-async function claim(db: Db, projectId: string, now: Date, quietMs: number) {
+/** Fails a running fit left by a stopped worker and queues a copy of it (same revision and settings). */
+async function requeueOrphanTx(
+  tx: DbTx,
+  projectId: string,
+  orphan: { id: string; revisionId: string; revisionNumber: number; settings: string; workerId: string | null },
+  now: Date,
+  staleMs: number,
+): Promise<void> {
+  const copy = await tx.fit.create({
+    data: { projectId, revisionId: orphan.revisionId, revisionNumber: orphan.revisionNumber, status: 'queued', settings: orphan.settings },
+    select: { id: true },
+  });
+  await tx.fit.update({
+    where: { id: orphan.id },
+    data: {
+      status: 'failed',
+      finishedAt: now,
+      error: `its worker${orphan.workerId ? ` (${orphan.workerId})` : ''} stopped answering for ${Math.round(staleMs / 1000)} s; run again as fit ${copy.id}`,
+    },
+  });
+}
+
+async function claim(db: Db, projectId: string, now: Date, quietMs: number, lease: FitLease | undefined) {
   return writeTx(db, [{ table: 'Project', id: projectId }], async (tx) => {
-    const running = await tx.fit.findFirst({ where: { projectId, status: 'running' }, select: { id: true } });
-    if (running) return null;
+    const running = await tx.fit.findFirst({
+      where: { projectId, status: 'running' },
+      select: { id: true, revisionId: true, revisionNumber: true, settings: true, workerId: true, heartbeatAt: true, startedAt: true },
+    });
+    if (running) {
+      const lastSign = running.heartbeatAt ?? running.startedAt;
+      const orphaned = lease !== undefined && (lastSign === null || now.getTime() - lastSign.getTime() > lease.staleMs);
+      if (!orphaned) return null;
+      await requeueOrphanTx(tx, projectId, running, now, lease.staleMs);
+    }
     const queued = await tx.fit.findMany({
       where: { projectId, status: 'queued' },
       orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }, { id: 'desc' }],
@@ -549,7 +593,10 @@ async function claim(db: Db, projectId: string, now: Date, quietMs: number) {
         data: { status: 'superseded', finishedAt: now, error: `coalesced into the fit of revision ${chosen.revisionNumber}` },
       });
     }
-    await tx.fit.update({ where: { id: chosen.id }, data: { status: 'running', startedAt: now, progress: 0, error: null } });
+    await tx.fit.update({
+      where: { id: chosen.id },
+      data: { status: 'running', startedAt: now, progress: 0, error: null, workerId: lease?.workerId ?? null, heartbeatAt: lease ? now : null },
+    });
     return chosen;
   });
 }
@@ -561,7 +608,7 @@ async function finishWithStatus(db: Db, fitId: string, status: 'failed' | 'cance
 /** Runs at most one queued fit of the project. Returns null when there was nothing to run. */
 export async function processProject(db: Db, projectId: string, options: ProcessOptions): Promise<ProcessOutcome | null> {
   const clock = options.clock ?? systemClock;
-  const claimed = await claim(db, projectId, clock(), options.followUpQuietMs ?? FOLLOW_UP_QUIET_MS);
+  const claimed = await claim(db, projectId, clock(), options.followUpQuietMs ?? FOLLOW_UP_QUIET_MS, options.lease);
   if (!claimed) return null;
   return runClaimedFit(db, projectId, claimed, options);
 }
@@ -601,6 +648,7 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     writing = writing.then(() => serialWrite(db, () => db.fit.updateMany({ where: { id: fitId, status: 'running' }, data: { progress: v } }))).catch(() => {});
   };
 
+  const heartbeat = options.lease ? startHeartbeat(db, fitId, options.lease, clock) : null;
   let pass: FitPass = 'full';
   try {
     // L2 scaling is applied here once per feature matrix (see l2NormalizedRows); the engine then
@@ -771,7 +819,22 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     log(`fit ${fitId} failed: ${message}`);
     await finishWithStatus(db, fitId, 'failed', message, clock());
     return outcome('failed', pass, message);
+  } finally {
+    heartbeat?.stop();
   }
+}
+
+/** Refreshes the running fit's heartbeat until stopped (job-system mode; see ProcessOptions.lease). */
+function startHeartbeat(db: Db, fitId: string, lease: FitLease, clock: Clock): { stop(): void } {
+  const timer = setInterval(() => {
+    void serialWrite(db, () => db.fit.updateMany({ where: { id: fitId, status: 'running', workerId: lease.workerId }, data: { heartbeatAt: clock() } })).catch(
+      () => {
+        // A missed beat is harmless unless the database stays away longer than the lease.
+      },
+    );
+  }, lease.heartbeatMs);
+  timer.unref?.();
+  return { stop: () => clearInterval(timer) };
 }
 
 /** After a quick pass: queue a full pass of the same revision unless newer work is waiting. */

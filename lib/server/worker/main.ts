@@ -1,0 +1,74 @@
+/**
+ * The `npm run worker` process (job-system mode, PostgreSQL): applies pending migrations, starts
+ * pg-boss in the worker role (it also runs pg-boss's maintenance: expiry, retries, archiving) and
+ * registers the job handlers — refits (with pivots and out-of-fold runs, lib/server/fits) and
+ * staged imports. Any number of these processes may run against one database, on any machines.
+ *
+ * SIGTERM / SIGINT stop taking jobs, let the running ones finish (up to `BORDERLINE_WORKER_STOP_SECONDS`,
+ * default 60 s; an unfinished fit is then picked up by another worker once its lease runs out) and
+ * exit 0. Logs are JSON lines on stdout.
+ */
+import { randomUUID } from 'node:crypto';
+import { hostname } from 'node:os';
+import type PgBoss from 'pg-boss';
+import { db as defaultDb } from '../db';
+import { env } from '../env';
+import { persistentWorkerEngine } from '../fits/engine';
+import { startFitJobWorker, type FitJobWorker } from '../fits/job-system';
+import { workerStandingsWriter } from '../fits/standings-writer';
+import { startJobSystem } from '../jobs/boss';
+import { prepareDatabaseOrExit } from '../startup';
+
+export type WorkerLog = (msg: string, fields?: Record<string, unknown>) => void;
+
+/** One JSON object per line: time, level, msg, worker, and the fields given. */
+export function jsonLineLog(base: Record<string, unknown>, write: (line: string) => void = (l) => process.stdout.write(`${l}\n`)): WorkerLog {
+  return (msg, fields) => write(JSON.stringify({ time: new Date().toISOString(), level: 'info', msg, ...base, ...fields }));
+}
+
+export interface RunningWorker {
+  readonly workerId: string;
+  stop(): Promise<void>;
+}
+
+export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Promise<RunningWorker> {
+  const e = env();
+  if (e.database.provider !== 'postgresql') {
+    throw new Error('npm run worker needs a PostgreSQL DATABASE_URL: on the embedded database the app runs background work itself.');
+  }
+  if (e.jobs !== 'job-system') {
+    throw new Error('npm run worker serves the job system, but BORDERLINE_JOBS=in-process keeps background work in the app.');
+  }
+  const workerId = `${hostname()}:${process.pid}:${randomUUID().slice(0, 8)}`;
+  const log = options.log ?? jsonLineLog({ worker: workerId });
+  await prepareDatabaseOrExit({ log: (line) => log(line) });
+  const boss: PgBoss = await startJobSystem({
+    connectionString: e.database.url,
+    role: 'worker',
+    expireInSeconds: Number(process.env.BORDERLINE_JOB_EXPIRE_SECONDS ?? 3600),
+    maintenanceIntervalSeconds: Number(process.env.BORDERLINE_JOB_MAINTENANCE_SECONDS ?? 30),
+    onError: (error) => log('job system error', { level: 'error', error: error.message }),
+  });
+  const leaseMs = e.BORDERLINE_FIT_LEASE_SECONDS * 1000;
+  const fits: FitJobWorker = await startFitJobWorker({
+    db: defaultDb(),
+    boss,
+    engine: persistentWorkerEngine(),
+    standingsWriter: workerStandingsWriter(e.database),
+    concurrency: e.BORDERLINE_WORKER_CONCURRENCY,
+    lease: { workerId, heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs },
+    sweepMs: Math.max(1000, Math.floor(leaseMs / 3)),
+    log,
+  });
+  log('worker started', { concurrency: e.BORDERLINE_WORKER_CONCURRENCY, leaseSeconds: e.BORDERLINE_FIT_LEASE_SECONDS });
+  return {
+    workerId,
+    async stop() {
+      log('worker stopping');
+      await fits.stop();
+      const timeout = Number(process.env.BORDERLINE_WORKER_STOP_SECONDS ?? 60) * 1000;
+      await boss.stop({ graceful: true, wait: true, timeout });
+      log('worker stopped');
+    },
+  };
+}
