@@ -11,8 +11,11 @@ import { z } from 'zod';
 
 // ───────────────────────── results returned by server actions and route handlers ─────────
 
-/** HTTP-like statuses an action may answer with. 500 only for faults on our side. */
-export type ActionStatus = 400 | 401 | 403 | 404 | 409 | 413 | 429 | 500;
+/**
+ * HTTP-like statuses an action may answer with. 500 only for faults on our side; 503 when the
+ * database is not answering (nothing was changed; the same request may be retried).
+ */
+export type ActionStatus = 400 | 401 | 403 | 404 | 409 | 413 | 429 | 500 | 503;
 
 export type ActionFailure = {
   ok: false;
@@ -21,6 +24,8 @@ export type ActionFailure = {
   error: string;
   /** Per-field messages for forms (dotted path → message), when the input was invalid. */
   fields?: Record<string, string>;
+  /** Set when the same request may simply be sent again later (status 503). */
+  retryable?: true;
 };
 
 export type ActionResult<T> = { ok: true; data: T } | ActionFailure;

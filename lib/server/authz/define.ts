@@ -13,14 +13,20 @@
  *      re-read from the database now — not from the token                                → 404
  *   4. the caller's role must reach the required role                                    → 403
  *   5. run the handler with a TeamScope for that team; expected refusals are ActionErrors → 4xx
+ * The database not answering at any step (stopped, restarting, connections refused or cut, SQLite
+ * locked past its busy timeout; lib/server/db-outage.ts) → 503 with MESSAGES.unavailable and
+ * `retryable: true` (routes add Retry-After); logged as one warning line. A handler's transaction
+ * is rolled back by the database when its connection goes, so nothing is half-done.
  * Unexpected errors are logged on the server and answered with a generic message (500); no
  * message text or stack of an internal error reaches the client.
  */
 import type { z } from 'zod';
 import { roleAtLeast, isRole, type ActionFailure, type ActionResult, type Role } from '../../domain';
 import { db, type Db } from '../db';
+import { databaseOutage } from '../db-outage';
+import { log } from '../log';
 import { requestContext, type RequestContext } from './context';
-import { ActionError, failure, MESSAGES } from './errors';
+import { ActionError, failure, failureHeaders, MESSAGES, unavailable } from './errors';
 import { REGISTRY, type Access, type ActionName, type RouteName } from './registry';
 import { teamOfResource, type ResourceRef } from './resources';
 import { mintTeamScope, type TeamScope } from './scope';
@@ -71,9 +77,20 @@ function prismaCode(error: unknown): string | null {
   return typeof code === 'string' && /^P\d{4}$/.test(code) ? code : null;
 }
 
+/** The last non-empty line of an error's message (Prisma puts the cause there). */
+function causeLine(error: unknown): string {
+  const message = error instanceof Error ? error.message : String(error);
+  return message.trim().split('\n').filter((l) => l.trim() !== '').at(-1)?.trim() ?? '';
+}
+
 /** Turns anything a handler threw into a failure result; logs unexpected errors server-side. */
 export function failureFromError(name: string, error: unknown): ActionFailure {
   if (error instanceof ActionError) return failure(error.status, error.message, error.fields);
+  const outage = databaseOutage(error);
+  if (outage !== null) {
+    log.warn('database unavailable', { endpoint: name, outage, error: causeLine(error) });
+    return unavailable();
+  }
   const code = prismaCode(error);
   if (code === 'P2002' || code === 'P2034') return failure(409, MESSAGES.conflict);
   if (code === 'P2025') return failure(404, MESSAGES.notFound);
@@ -194,11 +211,19 @@ export const DEFAULT_BODY_LIMIT_BYTES = 1_000_000;
 type RouteParams = Record<string, string | string[] | undefined>;
 export type RouteContext = { params: Promise<RouteParams> };
 
-function json(status: number, body: unknown): Response {
+function json(status: number, body: unknown, extra: Record<string, string> = {}): Response {
   return new Response(JSON.stringify(body), {
     status,
-    headers: { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store' },
+    headers: { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store', ...extra },
   });
+}
+
+/** A failure as JSON: {error, fields?, retryable?}, with Retry-After when retryable. */
+export function failureResponse(f: ActionFailure, extraHeaders: Record<string, string> = {}): Response {
+  const body: { error: string; fields?: Record<string, string>; retryable?: true } = { error: f.error };
+  if (f.fields) body.fields = f.fields;
+  if (f.retryable) body.retryable = true;
+  return json(f.status, body, { ...failureHeaders(f), ...extraHeaders });
 }
 
 /**
@@ -283,11 +308,7 @@ export function defineRoute<S extends z.ZodType, T>(
       };
       return { ok: true, data: await handler(parsed.data, caller, req) };
     });
-    if (!result.ok) {
-      const body: { error: string; fields?: Record<string, string> } = { error: result.error };
-      if (result.fields) body.fields = result.fields;
-      return json(result.status, body);
-    }
+    if (!result.ok) return failureResponse(result);
     return result.data instanceof Response ? result.data : json(200, result.data);
   };
 }

@@ -9,14 +9,15 @@
  *      a token of another project (or a project that does not exist)                    → 404
  *      its creator is no longer a lead of the project's team                            → 403
  *   4. run the handler with a TeamScope of the token's team and the token's project.
- * Errors are answered as by defineRoute: expected refusals with their message, anything else
- * with a generic 500 and nothing internal. The request body is left unread for the handler.
+ * Errors are answered as by defineRoute: expected refusals with their message, a database outage
+ * with 503 and Retry-After, anything else with a generic 500 and nothing internal. The request
+ * body is left unread for the handler.
  */
 import type { z } from 'zod';
 import { db, type Db } from '../db';
 import { authenticatePipelineToken, TOKEN_MESSAGES } from '../tokens';
 import { requestContext } from './context';
-import { assertRegistered, failureFromError, validationFailure, type RouteContext } from './define';
+import { assertRegistered, failureFromError, failureResponse, validationFailure, type RouteContext } from './define';
 import type { RouteName } from './registry';
 import { mintTeamScope, type TeamScope } from './scope';
 
@@ -72,8 +73,7 @@ export function defineTokenRoute<S extends z.ZodType<{ projectId: string }>, T>(
       const data = await handler(parsed.data, caller, req);
       return data instanceof Response ? data : json(200, data);
     } catch (error) {
-      const f = failureFromError(spec.name, error);
-      return json(f.status, f.fields ? { error: f.error, fields: f.fields } : { error: f.error });
+      return failureResponse(failureFromError(spec.name, error));
     }
   };
 }
