@@ -102,6 +102,7 @@ type RouteProbe = {
 const CSV_BODY = 'id,label,x,y\nprobe-1,left,0.5,-1\n';
 const ROUTE_PROBES: Record<string, RouteProbe> = {
   health: { method: 'GET', params: () => ({}) },
+  ready: { method: 'GET', params: () => ({}) },
   importData: { method: 'POST', params: (f) => ({ projectId: f.projectA }), query: () => ({ fileName: 'probe.csv' }), rawBody: CSV_BODY },
   uploadImportImage: {
     method: 'POST',

@@ -47,9 +47,10 @@ export type RouteEntry = {
   /**
    * defineRoute: goes through the wrapper. next-auth: the authentication endpoint itself
    * (CSRF-checked by next-auth; sign-in goes through our throttled `authorize`). static: answers
-   * a constant and reads nothing.
+   * a constant and reads nothing. readiness: runs the readiness check (a trivial query and the
+   * migrations record; lib/server/readiness.ts) and reads no team data.
    */
-  via: 'defineRoute' | 'defineTokenRoute' | 'next-auth' | 'static';
+  via: 'defineRoute' | 'defineTokenRoute' | 'next-auth' | 'static' | 'readiness';
   summary: string;
 };
 
@@ -147,6 +148,15 @@ export const REGISTRY = {
     writes: false,
     via: 'static',
     summary: 'Liveness: answers {status: "ok"}; reads nothing.',
+  },
+  ready: {
+    kind: 'route',
+    file: 'app/api/ready/route.ts',
+    methods: ['GET'],
+    access: 'public',
+    writes: false,
+    via: 'readiness',
+    summary: 'Readiness: 200 when the database answers within 2 s and its migrations are current, else 503 with the reason; no team data.',
   },
 
   // ── Data area: imports, exports, pipeline tokens (lib/server/import, export, tokens.ts) ──
