@@ -16,6 +16,7 @@ import type { TeamScope } from '../authz/scope';
 import type { Db, DbTx } from '../db';
 import { recordAudit } from '../auth/audit';
 import { requestRefit } from '../refit-request';
+import { createHistoryRow, type HistoryRow } from './record';
 import { readSpool, type StagedRow } from './spool';
 
 export type Dialect = 'sqlite' | 'postgresql';
@@ -81,7 +82,13 @@ export interface ApplyOptions {
   onWritten?: (rows: number) => void;
   /** Transaction timeout (ms). */
   timeoutMs?: number;
+  /**
+   * Writes the history row of the applied import (inside the transaction) and returns the batch
+   * id; default: a new ImportBatch row. `result` is what the import returns, batch id aside.
+   */
+  finish?: (client: DbTx, row: HistoryRow, result: Omit<ApplyResult, 'batchId'>) => Promise<string>;
 }
+
 
 /** Thrown inside the transaction when an update changes nothing, to roll it back. */
 class NothingChanged extends Error {
@@ -167,6 +174,7 @@ class RowInserter {
 export async function applyImport(client: Db, scope: TeamScope, input: ApplyInput, options: ApplyOptions = {}): Promise<ApplyResult> {
   const dialect = await dialectOf(client);
   const batchSize = options.batchSize ?? 1000;
+  const finish = options.finish ?? createHistoryRow;
   try {
     return await client.$transaction(
       async (tx) => {
@@ -305,67 +313,40 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
         });
         if (moved.count !== 1) throw conflict('Another change to this project was saved at the same time. Nothing was imported; try again.');
         const fit = await requestRefit(scope, project.id, revisionNumber, { tx });
-        const batchRow = await tx.importBatch.create({
-          data: {
-            projectId: project.id,
-            status: 'applied',
-            fileName: input.fileName,
-            format: input.format,
-            mode: input.mode,
-            rowCount: input.rowCount,
-            revisionNumber,
-            createdById: input.userId,
-            finishedAt: new Date(),
-          },
-          select: { id: true },
-        });
+        const result = { revisionNumber, fitId: fit.fitId, added, relabelled, updated, unchanged, classesAdded: toAdd.length };
+        const batchId = await finish(tx, historyRow(input, revisionNumber), result);
         await recordAudit(tx, {
           action: 'import.applied',
           teamId: scope.teamId,
           userId: input.userId,
           targetType: 'project',
           targetId: project.id,
-          detail: { batchId: batchRow.id, revision: revisionNumber, rows: input.rowCount, added, relabelled, updated, mode: input.mode },
+          detail: { batchId, revision: revisionNumber, rows: input.rowCount, added, relabelled, updated, mode: input.mode },
           address: input.address ?? null,
         });
-        return {
-          batchId: batchRow.id,
-          revisionNumber,
-          fitId: fit.fitId,
-          added,
-          relabelled,
-          updated,
-          unchanged,
-          classesAdded: toAdd.length,
-        };
+        return { batchId, ...result };
       },
       { timeout: options.timeoutMs ?? 30 * 60_000, maxWait: 30_000 },
     );
   } catch (error) {
     if (!(error instanceof NothingChanged)) throw error;
-    const batchRow = await client.importBatch.create({
-      data: {
-        projectId: input.projectId,
-        status: 'applied',
-        fileName: input.fileName,
-        format: input.format,
-        mode: input.mode,
-        rowCount: input.rowCount,
-        revisionNumber: null,
-        createdById: input.userId,
-        finishedAt: new Date(),
-      },
-      select: { id: true },
-    });
-    return {
-      batchId: batchRow.id,
-      revisionNumber: null,
-      fitId: null,
-      added: 0,
-      relabelled: 0,
-      updated: 0,
-      unchanged: error.unchanged,
-      classesAdded: 0,
-    };
+    const result = { revisionNumber: null, fitId: null, added: 0, relabelled: 0, updated: 0, unchanged: error.unchanged, classesAdded: 0 };
+    const batchId = await finish(client, historyRow(input, null), result);
+    return { batchId, ...result };
   }
+}
+
+function historyRow(input: ApplyInput, revisionNumber: number | null): HistoryRow {
+  return {
+    projectId: input.projectId,
+    status: 'applied',
+    fileName: input.fileName,
+    format: input.format,
+    mode: input.mode,
+    rowCount: input.rowCount,
+    revisionNumber,
+    error: null,
+    createdById: input.userId,
+    finishedAt: new Date(),
+  };
 }

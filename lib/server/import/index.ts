@@ -26,6 +26,7 @@ import { announceRefit } from '../refit-request';
 import { applyImport, type ApplyResult } from './apply';
 import { DETAIL, FatalImportProblem, MAX_PROBLEMS, problemAt, type ImportProblem } from './problems';
 import { readCsv, readLines } from './readers';
+import { ImportBatchLost, newBatchRecorder, type HistoryRow, type ImportRecorder } from './record';
 import { SpoolWriter } from './spool';
 import { discardUploadBatch, imageResolver } from './uploads';
 import { decodeUtf8 } from './utf8';
@@ -68,6 +69,8 @@ export interface ImportOptions {
   client?: Db;
   /** Rows per database statement (default 1000). */
   batchSize?: number;
+  /** Writes the import-history row (default: a new row; the job system updates its staged batch). */
+  recorder?: ImportRecorder;
 }
 
 export type ImportOutcome =
@@ -182,6 +185,7 @@ export async function importSamples(
 ): Promise<ImportOutcome> {
   const client = options.client ?? db();
   const maxProblems = options.maxProblems ?? MAX_PROBLEMS;
+  const recorder = options.recorder ?? newBatchRecorder;
   const facts = await loadProjectFacts(client, scope, projectId);
   const validator = new RowValidator(facts, {
     mode: input.mode,
@@ -251,12 +255,31 @@ export async function importSamples(
     const problems = [...validator.problems, ...fatal].slice(0, maxProblems);
     if (problems.length > 0) {
       const truncated = validator.truncated || validator.problems.length + fatal.length > maxProblems || validator.full;
-      const batchId = await recordFailure(client, scope, projectId, input, format, validator.rows, problems[0].message);
+      const refused = (batchId: string | null): ImportOutcome => ({
+        ok: false,
+        status: 400,
+        batchId,
+        format,
+        fileName: input.fileName,
+        rows: validator.rows,
+        problems,
+        truncated,
+      });
+      const batchId = await recordFailure(client, scope, projectId, input, recorder, format, validator.rows, problems[0].message, refused);
       await discardUploadBatch(projectId, input.uploadBatch);
-      return { ok: false, status: 400, batchId, format, fileName: input.fileName, rows: validator.rows, problems, truncated };
+      return refused(batchId);
     }
     await spool.close();
     const resolvedFormat: ImportFormat = format ?? 'csv';
+    const succeeded = (applied: Omit<ApplyResult, 'batchId'>) => ({
+      ok: true as const,
+      format: resolvedFormat,
+      fileName: input.fileName,
+      mode: input.mode,
+      rows: validator.rows,
+      newClasses: [...validator.newClasses],
+      ...applied,
+    });
 
     report('writing', 0, true);
     let result: ApplyResult;
@@ -277,28 +300,34 @@ export async function importSamples(
           newClasses: validator.newClasses,
           address: input.address ?? null,
         },
-        { batchSize: options.batchSize, onWritten: (n) => report('writing', n) },
+        {
+          batchSize: options.batchSize,
+          onWritten: (n) => report('writing', n),
+          finish: (tx, row, applied) => recorder.finish(tx, row, (batchId) => ({ ...succeeded(applied), batchId })),
+        },
       );
     } catch (error) {
       const refusal = conflictMessage(error);
       if (refusal === null) throw error;
       const problem: ImportProblem = { row: null, column: null, message: refusal };
-      const batchId = await recordFailure(client, scope, projectId, input, resolvedFormat, validator.rows, refusal);
-      return { ok: false, status: 409, batchId, format: resolvedFormat, fileName: input.fileName, rows: validator.rows, problems: [problem], truncated: false };
+      const refused = (batchId: string | null): ImportOutcome => ({
+        ok: false,
+        status: 409,
+        batchId,
+        format: resolvedFormat,
+        fileName: input.fileName,
+        rows: validator.rows,
+        problems: [problem],
+        truncated: false,
+      });
+      const batchId = await recordFailure(client, scope, projectId, input, recorder, resolvedFormat, validator.rows, refusal, refused);
+      return refused(batchId);
     }
     if (result.fitId !== null && result.revisionNumber !== null) {
       await announceRefit({ fitId: result.fitId, projectId, revisionNumber: result.revisionNumber });
     }
     report('done', spool.count, true);
-    return {
-      ok: true,
-      format: resolvedFormat,
-      fileName: input.fileName,
-      mode: input.mode,
-      rows: validator.rows,
-      newClasses: [...validator.newClasses],
-      ...result,
-    };
+    return { ...succeeded(result), batchId: result.batchId };
   } finally {
     await spool.dispose();
   }
@@ -325,36 +354,40 @@ async function recordFailure(
   scope: TeamScope,
   projectId: string,
   input: ImportInput,
+  recorder: ImportRecorder,
   format: ImportFormat | null,
   rows: number,
   message: string,
+  outcome: (batchId: string) => ImportOutcome,
 ): Promise<string | null> {
+  const row: HistoryRow = {
+    projectId,
+    status: 'failed',
+    fileName: input.fileName,
+    format: format ?? 'unknown',
+    mode: input.mode,
+    rowCount: rows,
+    revisionNumber: null,
+    error: message.slice(0, 1000),
+    createdById: input.userId,
+    finishedAt: new Date(),
+  };
   try {
-    const batch = await client.importBatch.create({
-      data: {
-        projectId,
-        status: 'failed',
-        fileName: input.fileName,
-        format: format ?? 'unknown',
-        mode: input.mode,
-        rowCount: rows,
-        error: message.slice(0, 1000),
-        createdById: input.userId,
-        finishedAt: new Date(),
-      },
-      select: { id: true },
+    return await client.$transaction(async (tx) => {
+      const batchId = await recorder.finish(tx, row, outcome);
+      await recordAudit(tx, {
+        action: 'import.failed',
+        teamId: scope.teamId,
+        userId: input.userId,
+        targetType: 'project',
+        targetId: projectId,
+        detail: { batchId, rows, mode: input.mode },
+        address: input.address ?? null,
+      });
+      return batchId;
     });
-    await recordAudit(client, {
-      action: 'import.failed',
-      teamId: scope.teamId,
-      userId: input.userId,
-      targetType: 'project',
-      targetId: projectId,
-      detail: { batchId: batch.id, rows, mode: input.mode },
-      address: input.address ?? null,
-    });
-    return batch.id;
   } catch (error) {
+    if (error instanceof ImportBatchLost) throw error;
     // The project may have been removed meanwhile; the refusal itself still stands.
     console.error('[import] could not record a failed import', error);
     return null;
