@@ -3,9 +3,11 @@
  *
  * Lease rules (QUEUE_TIMING.leaseSeconds, 90 s):
  * - An item can be leased by one user at a time. A lease is free when it has no holder or its
- *   expiry has passed. Taking it is one conditional UPDATE (`WHERE id = … AND (no holder OR
- *   expired OR holder = me)`), so of two reviewers racing for the same item exactly one gets it,
- *   on SQLite and on PostgreSQL; the other moves on to the next candidate.
+ *   expiry has passed. Choosing and taking it is one UPDATE whose subquery picks the item
+ *   (`takeLease`), so of two reviewers racing for the same item exactly one gets it, on SQLite and
+ *   on PostgreSQL; the other gets the next candidate. A claim is one short transaction of two
+ *   statements (take, then release the caller's other leases): "next" is the hottest request of
+ *   the queue, and on SQLite every statement inside a write transaction holds up all other writers.
  * - Claiming again while holding a live lease returns the same item and extends the lease (a
  *   reload, or the screen's periodic renewal, does not lose the item).
  * - Only items awaiting votes are handed out (open, one-vote), never one the caller has voted on,
@@ -20,14 +22,13 @@ import type { TeamScope } from '../authz/scope';
 import { forbidden } from '../authz/errors';
 import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
-import { writeTx } from './tx';
+import { Prisma, type DbTx } from '../db';
+import { providerOf, writeTx, type Provider } from './tx';
 
 export interface Claimed {
   readonly itemId: string;
   readonly leaseExpiresAt: Date;
 }
-
-const AWAITING = ['open', 'one-vote'];
 
 export async function claimNext(
   deps: QueueDeps,
@@ -36,90 +37,81 @@ export async function claimNext(
   input: { projectId: string; skipItemId?: string },
 ): Promise<Claimed | null> {
   if (!roleAtLeast(actor.role, 'reviewer')) throw forbidden(QUEUE_MESSAGES.observerVote);
+  const project = await projectInScope(deps.db, scope, input.projectId);
+  return claimInProject(deps, project.id, actor.userId, input.skipItemId);
+}
+
+/**
+ * The claim itself, for a project already checked against the caller's scope: one transaction of
+ * two statements (see `takeLease`), then the caller's other leases in the project are released.
+ */
+export async function claimInProject(deps: QueueDeps, projectId: string, me: string, skipItemId?: string): Promise<Claimed | null> {
   const { db } = deps;
-  const project = await projectInScope(db, scope, input.projectId);
   const now = nowOf(deps);
   const until = new Date(now.getTime() + QUEUE_TIMING.leaseSeconds * 1000);
-  const me = actor.userId;
+  const undoStart = new Date(now.getTime() - QUEUE_TIMING.undoSeconds * 1000);
+  const provider = providerOf(db);
+  // The claim UPDATE is the transaction's first statement and a write, so on SQLite it takes the
+  // write lock at once (no separate lock statement needed, see tx.ts).
+  return writeTx(db, [], async (tx) => {
+    const id = await takeLease(tx, provider, { projectId, me, skip: skipItemId ?? '', now, until, undoStart });
+    // One lease per reviewer: the item skipped and any other (stale) lease of mine in the project go.
+    if (id !== null || skipItemId) {
+      await tx.$executeRaw`UPDATE "QueueItem" SET "leaseUserId" = NULL, "leaseExpiresAt" = NULL, "updatedAt" = ${new Date()}
+        WHERE "projectId" = ${projectId} AND "leaseUserId" = ${me} AND "id" <> ${id ?? ''}`;
+    }
+    return id === null ? null : { itemId: id, leaseExpiresAt: until };
+  });
+}
 
-  return writeTx(
-    db,
-    [],
-    async (tx) => {
-      if (input.skipItemId) {
-        await tx.queueItem.updateMany({
-          where: { id: input.skipItemId, projectId: project.id, leaseUserId: me },
-          data: { leaseUserId: null, leaseExpiresAt: null },
-        });
-      }
-      const releaseOthers = (keep: string) =>
-        tx.queueItem.updateMany({
-          where: { projectId: project.id, leaseUserId: me, id: { not: keep } },
-          data: { leaseUserId: null, leaseExpiresAt: null },
-        });
+interface TakeArgs {
+  readonly projectId: string;
+  readonly me: string;
+  /** item id not to hand out ('' for none) */
+  readonly skip: string;
+  readonly now: Date;
+  readonly until: Date;
+  readonly undoStart: Date;
+}
 
-      // A live lease of mine: renew it and hand the same item back.
-      const held = await tx.queueItem.findFirst({
-        where: {
-          projectId: project.id,
-          leaseUserId: me,
-          leaseExpiresAt: { gt: now },
-          state: { in: AWAITING },
-          votes: { none: { userId: me } },
-          ...(input.skipItemId ? { id: { not: input.skipItemId } } : {}),
-        },
-        orderBy: { leaseExpiresAt: 'desc' },
-        select: { id: true },
-      });
-      if (held) {
-        const renewed = await tx.queueItem.updateMany({
-          where: { id: held.id, leaseUserId: me, state: { in: AWAITING } },
-          data: { leaseExpiresAt: until },
-        });
-        if (renewed.count === 1) {
-          // One lease per reviewer: drop any other (stale) lease this user still holds here.
-          await releaseOthers(held.id);
-          return { itemId: held.id, leaseExpiresAt: until };
-        }
-      }
-
-      const undoStart = new Date(now.getTime() - QUEUE_TIMING.undoSeconds * 1000);
-      for (let round = 0; round < 4; round++) {
-        const candidates = await tx.queueItem.findMany({
-          where: {
-            projectId: project.id,
-            state: { in: AWAITING },
-            ...(input.skipItemId ? { id: { not: input.skipItemId } } : {}),
-            OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }, { leaseUserId: me }],
-            votes: { none: { userId: me } },
-            NOT: { votes: { some: { createdAt: { gt: undoStart } } } },
-          },
-          // 'one-vote' sorts before 'open'.
-          orderBy: [{ state: 'asc' }, { suspicion: 'desc' }, { id: 'asc' }],
-          take: 6,
-          select: { id: true },
-        });
-        if (candidates.length === 0) return null;
-        for (const c of candidates) {
-          // Conditional take: of two reviewers racing for this item exactly one matches.
-          const taken = await tx.queueItem.updateMany({
-            where: {
-              id: c.id,
-              state: { in: AWAITING },
-              OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }, { leaseUserId: me }],
-            },
-            data: { leaseUserId: me, leaseExpiresAt: until },
-          });
-          if (taken.count === 1) {
-            await releaseOthers(c.id);
-            return { itemId: c.id, leaseExpiresAt: until };
-          }
-        }
-      }
-      return null;
-    },
-    { sqliteLock: { table: 'Project', id: project.id } },
-  );
+/**
+ * One conditional UPDATE that picks and leases the item in a single statement: the caller's own
+ * live lease first (renewed), else the first free item awaiting votes in the queue's order. The
+ * candidate conditions are those of the module comment; a live lease of the caller's own is kept
+ * even while another reviewer's vote on it is inside its undo window (the caller got it back by an
+ * undo, or held it before that vote).
+ * - SQLite runs the statement under the database write lock, so the choice and the take are atomic.
+ * - PostgreSQL: `FOR UPDATE` in the subquery locks the chosen row; a reviewer racing for the same
+ *   row waits for the first one's commit, and READ COMMITTED then re-checks the row against the
+ *   conditions (now leased → not matching) and moves on to the next row in order, so of racing
+ *   reviewers exactly one gets each item.
+ */
+async function takeLease(tx: DbTx, provider: Provider, a: TakeArgs): Promise<string | null> {
+  const lockClause = provider === 'postgresql' ? Prisma.sql`FOR UPDATE` : Prisma.empty;
+  const rows = await tx.$queryRaw<{ id: string }[]>`
+    UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${new Date()}
+    WHERE "id" = (
+      SELECT q."id" FROM "QueueItem" q
+      WHERE q."projectId" = ${a.projectId}
+        AND q."state" IN ('open', 'one-vote')
+        AND q."id" <> ${a.skip}
+        AND (q."leaseUserId" IS NULL OR q."leaseExpiresAt" <= ${a.now} OR q."leaseUserId" = ${a.me})
+        AND NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."userId" = ${a.me})
+        AND (
+          (q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now})
+          OR NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."createdAt" > ${a.undoStart})
+        )
+      ORDER BY
+        CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN 0 ELSE 1 END,
+        CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN q."leaseExpiresAt" END DESC,
+        q."state" ASC,
+        q."suspicion" DESC,
+        q."id" ASC
+      LIMIT 1
+      ${lockClause}
+    )
+    RETURNING "id"`;
+  return rows[0]?.id ?? null;
 }
 
 /** Gives up the caller's lease on an item (e.g. leaving the screen). */
