@@ -38,7 +38,11 @@ const nextConfig = {
     '@prisma/adapter-pg',
     '@prisma/schema-engine-wasm',
     'pg',
+    'pg-boss',
   ],
+  // Several app instances must serve the same build: build once and copy `.next`, or build on each
+  // machine with the same BORDERLINE_BUILD_ID (and the same NEXT_SERVER_ACTIONS_ENCRYPTION_KEY).
+  generateBuildId: async () => process.env.BORDERLINE_BUILD_ID || null,
   async headers() {
     return [{ source: '/:path*', headers: securityHeaders }];
   },
