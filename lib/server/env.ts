@@ -19,6 +19,11 @@ export type LogLevel = (typeof LOG_LEVELS)[number];
 
 export const DEFAULT_DATABASE_URL = 'file:./data/borderline.db';
 
+/** A whole number in [min, max]; `must` words the type error ("must be a whole number of hours"). */
+function wholeNumber(must: string, [min, tooSmall]: [number, string], [max, tooLarge]: [number, string]) {
+  return z.coerce.number({ error: must }).int({ error: must }).min(min, { error: tooSmall }).max(max, { error: tooLarge });
+}
+
 /** Every environment variable the server reads. Add new ones here. */
 const variables = z.object({
   NODE_ENV: z
@@ -41,19 +46,9 @@ const variables = z.object({
   /** Local state: uploads, the development secret, the demo's planted-error list. */
   BORDERLINE_DATA_DIR: z.string().min(1).default('./data'),
   /** Session lifetime in hours, counted from sign-in (not extended by activity). */
-  BORDERLINE_SESSION_HOURS: z.coerce
-    .number({ error: 'must be a whole number of hours' })
-    .int({ error: 'must be a whole number of hours' })
-    .min(1, { error: 'must be at least 1 (hour)' })
-    .max(168, { error: 'must be at most 168 (one week)' })
-    .default(8),
+  BORDERLINE_SESSION_HOURS: wholeNumber('must be a whole number of hours', [1, 'must be at least 1 (hour)'], [168, 'must be at most 168 (one week)']).default(8),
   /** Reverse proxies in front of the app that append to X-Forwarded-For (sign-in throttling by address). */
-  BORDERLINE_PROXY_HOPS: z.coerce
-    .number({ error: 'must be a whole number' })
-    .int({ error: 'must be a whole number' })
-    .min(0, { error: 'must be 0 or more' })
-    .max(5, { error: 'must be at most 5' })
-    .default(0),
+  BORDERLINE_PROXY_HOPS: wholeNumber('must be a whole number', [0, 'must be 0 or more'], [5, 'must be at most 5']).default(0),
   /**
    * Where background work (refits, imports) runs. `auto`: in this process on SQLite, through the
    * PostgreSQL job system (pg-boss; `npm run worker` processes) on PostgreSQL. `in-process` keeps it
@@ -63,19 +58,9 @@ const variables = z.object({
     .enum(['auto', 'in-process', 'job-system'], { error: 'must be auto, in-process or job-system' })
     .default('auto'),
   /** A running fit whose worker has not given a sign of life for this long is run again elsewhere. */
-  BORDERLINE_FIT_LEASE_SECONDS: z.coerce
-    .number({ error: 'must be a whole number of seconds' })
-    .int({ error: 'must be a whole number of seconds' })
-    .min(3, { error: 'must be at least 3 (seconds)' })
-    .max(3600, { error: 'must be at most 3600 (one hour)' })
-    .default(30),
+  BORDERLINE_FIT_LEASE_SECONDS: wholeNumber('must be a whole number of seconds', [3, 'must be at least 3 (seconds)'], [3600, 'must be at most 3600 (one hour)']).default(30),
   /** Fits each `npm run worker` process runs at the same time. */
-  BORDERLINE_WORKER_CONCURRENCY: z.coerce
-    .number({ error: 'must be a whole number' })
-    .int({ error: 'must be a whole number' })
-    .min(1, { error: 'must be at least 1' })
-    .max(16, { error: 'must be at most 16' })
-    .default(1),
+  BORDERLINE_WORKER_CONCURRENCY: wholeNumber('must be a whole number', [1, 'must be at least 1'], [16, 'must be at most 16']).default(1),
 });
 
 export type RawEnv = z.infer<typeof variables>;

@@ -197,6 +197,22 @@ describe('checked environment (env.ts)', () => {
     );
   });
 
+  it('resolves where background work runs: in-process on SQLite, the job system on PostgreSQL', () => {
+    const r = root();
+    const pgUrl = 'postgresql://app@db.example:5432/borderline';
+    expect(parseEnv({ NODE_ENV: 'test' }, r).jobs).toBe('in-process');
+    expect(parseEnv({ NODE_ENV: 'test', DATABASE_URL: pgUrl }, r).jobs).toBe('job-system');
+    expect(parseEnv({ NODE_ENV: 'test', DATABASE_URL: pgUrl, BORDERLINE_JOBS: 'in-process' }, r).jobs).toBe('in-process');
+    // Expected texts: the messages written in lib/server/env.ts.
+    expect(() => parseEnv({ NODE_ENV: 'test', BORDERLINE_JOBS: 'job-system' }, r)).toThrow(
+      'BORDERLINE_JOBS is job-system, which needs a PostgreSQL DATABASE_URL (the embedded database runs background work in-process)',
+    );
+    expect(() => parseEnv({ BORDERLINE_JOBS: 'queue' }, r)).toThrow('BORDERLINE_JOBS must be auto, in-process or job-system (got "queue")');
+    expect(() => parseEnv({ BORDERLINE_FIT_LEASE_SECONDS: '2' }, r)).toThrow('BORDERLINE_FIT_LEASE_SECONDS must be at least 3 (seconds) (got "2")');
+    expect(() => parseEnv({ BORDERLINE_WORKER_CONCURRENCY: '1.5' }, r)).toThrow('BORDERLINE_WORKER_CONCURRENCY must be a whole number (got "1.5")');
+    expect(() => parseEnv({ BORDERLINE_SESSION_HOURS: '200' }, r)).toThrow('BORDERLINE_SESSION_HOURS must be at most 168 (one week) (got "200")');
+  });
+
   it('env() validates once and caches', () => {
     const saved = { ...process.env };
     try {
