@@ -113,7 +113,7 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('refit jobs on pg-boss', () => {
     const bosses = [await startJobSystem({ connectionString: t.url, role: 'worker' }), await startJobSystem({ connectionString: t.url, role: 'worker' })];
     const workers = await Promise.all(
       bosses.map((boss, k) =>
-        startFitJobWorker({ db, boss, engine: inlineEngine, lease: { workerId: `w${k}`, heartbeatMs: 500, staleMs: 10_000 }, bootstrap: false, sweepMs: 1000 }),
+        startFitJobWorker({ db, boss, engines: [inlineEngine], lease: { workerId: `w${k}`, heartbeatMs: 500, staleMs: 10_000 }, bootstrap: false, sweepMs: 1000 }),
       ),
     );
     try {

@@ -54,10 +54,9 @@ export class JobSystemFitQueue implements FitJobQueue {
 export interface FitJobWorkerOptions {
   readonly db: Db;
   readonly boss: PgBoss;
-  readonly engine: EngineRunner;
+  /** One engine per refit job this process runs at once (each engine runs one job at a time). */
+  readonly engines: readonly EngineRunner[];
   readonly lease: FitLease;
-  /** refit jobs this process runs at once (default 1) */
-  readonly concurrency?: number;
   /** how often the sweep re-sends jobs for waiting or orphaned fits (default 5 s) */
   readonly sweepMs?: number;
   /** how often a running follow-up pass checks for a newer revision (default 1 s) */
@@ -84,10 +83,11 @@ export async function startFitJobWorker(options: FitJobWorkerOptions): Promise<F
   const log = options.log ?? (() => {});
   if (options.bootstrap !== false) await queueFirstFits(db, (line) => log(line));
   const workIds: string[] = [];
-  for (let i = 0; i < (options.concurrency ?? 1); i++) {
+  if (options.engines.length === 0) throw new Error('A refit worker needs at least one engine.');
+  for (const engine of options.engines) {
     workIds.push(
       await boss.work<RefitJobData>(JOB_QUEUES.refit, { batchSize: 1, pollingIntervalSeconds: options.pollingIntervalSeconds ?? 0.5 }, async (jobs) => {
-        for (const job of jobs) await runRefitJob(options, job.data.projectId);
+        for (const job of jobs) await runRefitJob(options, engine, job.data.projectId);
       }),
     );
   }
@@ -109,7 +109,7 @@ export async function startFitJobWorker(options: FitJobWorkerOptions): Promise<F
 }
 
 /** One refit job: run the project's queued fits until none is left (the job body is idempotent). */
-async function runRefitJob(options: FitJobWorkerOptions, projectId: string): Promise<void> {
+async function runRefitJob(options: FitJobWorkerOptions, engine: EngineRunner, projectId: string): Promise<void> {
   const log = options.log ?? (() => {});
   for (;;) {
     const controller = new AbortController();
@@ -117,7 +117,7 @@ async function runRefitJob(options: FitJobWorkerOptions, projectId: string): Pro
     let outcome: ProcessOutcome | null;
     try {
       outcome = await processProject(options.db, projectId, {
-        engine: options.engine,
+        engine,
         lease: options.lease,
         signal: controller.signal,
         followUpQuietMs: options.followUpQuietMs,

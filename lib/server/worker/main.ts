@@ -15,6 +15,7 @@ import { db as defaultDb } from '../db';
 import { env } from '../env';
 import { persistentWorkerEngine } from '../fits/engine';
 import { startFitJobWorker, type FitJobWorker } from '../fits/job-system';
+import { startImportJobWorker } from '../import/job';
 import { workerStandingsWriter } from '../fits/standings-writer';
 import { startJobSystem } from '../jobs/boss';
 import { prepareDatabaseOrExit } from '../startup';
@@ -53,13 +54,13 @@ export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Pro
   const fits: FitJobWorker = await startFitJobWorker({
     db: defaultDb(),
     boss,
-    engine: persistentWorkerEngine(),
+    engines: Array.from({ length: e.BORDERLINE_WORKER_CONCURRENCY }, () => persistentWorkerEngine()),
     standingsWriter: workerStandingsWriter(e.database),
-    concurrency: e.BORDERLINE_WORKER_CONCURRENCY,
     lease: { workerId, heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs },
     sweepMs: Math.max(1000, Math.floor(leaseMs / 3)),
     log,
   });
+  await startImportJobWorker({ db: defaultDb(), boss, workerId, lease: { heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs }, log });
   log('worker started', { concurrency: e.BORDERLINE_WORKER_CONCURRENCY, leaseSeconds: e.BORDERLINE_FIT_LEASE_SECONDS });
   return {
     workerId,
