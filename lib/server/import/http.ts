@@ -8,9 +8,128 @@
  *   200 imported, 400 refused (problems listed), 409 concurrent change.
  */
 import { DATA_LIMITS } from '../../domain-data';
-import { badRequest, tooLarge } from '../authz/errors';
+import { badRequest, conflict, notFound, tooLarge } from '../authz/errors';
 import type { TeamScope } from '../authz/scope';
-import { importSamples, type ImportInput, type ImportOutcome } from './index';
+import { db } from '../db';
+import { env } from '../env';
+import { appJobSystem } from '../jobs/app';
+import { importSamples, type ImportInput, type ImportOutcome, type ImportProgress } from './index';
+import type { StoredOutcome } from './job';
+import { queueImportJob, stageImport, waitForImport } from './staged';
+
+/**
+ * Files at least this large go through the job system when it is on (BORDERLINE_JOBS=job-system,
+ * PostgreSQL); smaller ones import in the request's process, as on SQLite — a worker round trip
+ * would cost more than the import. Images uploaded with an import live on this instance's disk,
+ * so such an import also runs here.
+ */
+export const JOB_IMPORT_MIN_BYTES = 1024 * 1024;
+
+interface RunOptions {
+  onProgress?: (progress: ImportProgress) => void;
+  /** The client went away: stop relaying (a queued import still completes in a worker). */
+  signal?: AbortSignal;
+}
+
+/**
+ * Runs an import from a request body: in this process, or — for a large file with the job system
+ * on — staged into the database and applied by a worker, relaying its progress. Either way the
+ * outcome (or the error thrown) is the same for the same file.
+ */
+export async function runRequestImport(
+  scope: TeamScope,
+  projectId: string,
+  input: Omit<ImportInput, 'source'>,
+  req: Request,
+  options: RunOptions = {},
+): Promise<ImportOutcome> {
+  const bytes = requestBytes(req);
+  const inProcess = (source: AsyncIterable<Uint8Array>) =>
+    importSamples(scope, projectId, { ...input, source }, options.onProgress ? { onProgress: options.onProgress, progressEveryMs: 250 } : {});
+  if (env().jobs !== 'job-system' || input.uploadBatch !== undefined) return inProcess(bytes);
+  const head = await readHead(bytes, JOB_IMPORT_MIN_BYTES);
+  if (head.ended) return inProcess(head.source);
+  return importThroughJobSystem(scope, projectId, input, head.source, options);
+}
+
+async function importThroughJobSystem(
+  scope: TeamScope,
+  projectId: string,
+  input: Omit<ImportInput, 'source'>,
+  source: AsyncIterable<Uint8Array>,
+  options: RunOptions,
+): Promise<ImportOutcome> {
+  const boss = await appJobSystem();
+  const client = db();
+  let lastReport = 0;
+  const staged = await stageImport(
+    client,
+    scope,
+    projectId,
+    { fileName: input.fileName, mode: input.mode, featurePrefix: input.featurePrefix, address: input.address ?? null },
+    input.userId,
+    source,
+    {
+      onStored: (stored) => {
+        const now = Date.now();
+        if (now - lastReport < 250) return;
+        lastReport = now;
+        options.onProgress?.({ phase: 'reading', bytes: stored, rows: 0, written: 0 });
+      },
+    },
+  );
+  await queueImportJob(boss, staged.batchId);
+  const stored = await waitForImport(client, staged.batchId, { onProgress: options.onProgress, signal: options.signal });
+  if (stored === null) throw new Error('the client went away; the import continues in a worker');
+  return outcomeOf(stored);
+}
+
+/** The stored outcome as the in-process import would have ended: its outcome, or its error. */
+function outcomeOf(stored: StoredOutcome): ImportOutcome {
+  if (stored.kind === 'outcome') return stored.outcome;
+  switch (stored.status) {
+    case 400:
+      throw badRequest(stored.error);
+    case 404:
+      throw notFound();
+    case 409:
+      throw conflict(stored.error);
+    case 413:
+      throw tooLarge(stored.error);
+    default:
+      throw new Error(`import worker fault: ${stored.error}`);
+  }
+}
+
+/**
+ * Reads up to `want` bytes. `ended`: the body was shorter; `source` replays what was read, then
+ * the rest.
+ */
+async function readHead(source: AsyncIterable<Uint8Array>, want: number): Promise<{ ended: boolean; source: AsyncIterable<Uint8Array> }> {
+  const iterator = source[Symbol.asyncIterator]();
+  const chunks: Uint8Array[] = [];
+  let size = 0;
+  let ended = false;
+  while (size < want) {
+    const next = await iterator.next();
+    if (next.done) {
+      ended = true;
+      break;
+    }
+    chunks.push(next.value);
+    size += next.value.byteLength;
+  }
+  async function* replay(): AsyncGenerator<Uint8Array> {
+    yield* chunks;
+    if (ended) return;
+    for (;;) {
+      const next = await iterator.next();
+      if (next.done) return;
+      yield next.value;
+    }
+  }
+  return { ended, source: replay() };
+}
 
 /** The request body as bytes, refusing more than `limit` bytes. */
 export async function* requestBytes(req: Request, limit: number = DATA_LIMITS.importBytes): AsyncGenerator<Uint8Array> {
@@ -48,6 +167,8 @@ const FAULT = 'Something went wrong on our side and nothing was imported. Try ag
 /** Runs the import and answers with JSON lines of progress, then the outcome. */
 export function importProgressResponse(scope: TeamScope, projectId: string, input: Omit<ImportInput, 'source'>, req: Request): Response {
   const encoder = new TextEncoder();
+  // The browser went away: stop relaying a job-system import (the worker still completes it).
+  const gone = new AbortController();
   const stream = new ReadableStream<Uint8Array>({
     start(controller) {
       let open = true;
@@ -57,13 +178,14 @@ export function importProgressResponse(scope: TeamScope, projectId: string, inpu
           controller.enqueue(encoder.encode(`${JSON.stringify(line)}\n`));
         } catch {
           open = false; // the browser went away; the import itself carries on or fails whole
+          gone.abort();
         }
       };
       void (async () => {
         try {
-          const outcome = await importSamples(scope, projectId, { ...input, source: requestBytes(req) }, {
+          const outcome = await runRequestImport(scope, projectId, input, req, {
             onProgress: (p) => send({ type: 'progress', ...p }),
-            progressEveryMs: 250,
+            signal: gone.signal,
           });
           send({ type: 'result', outcome });
         } catch (error) {
@@ -81,6 +203,9 @@ export function importProgressResponse(scope: TeamScope, projectId: string, inpu
           }
         }
       })();
+    },
+    cancel() {
+      gone.abort();
     },
   });
   return new Response(stream, {
@@ -104,7 +229,7 @@ function errorStatus(error: unknown): number {
 
 /** Runs the import and answers once with JSON (pipeline API). */
 export async function importJsonResponse(scope: TeamScope, projectId: string, input: Omit<ImportInput, 'source'>, req: Request): Promise<Response> {
-  const outcome = await importSamples(scope, projectId, { ...input, source: requestBytes(req) });
+  const outcome = await runRequestImport(scope, projectId, input, req, { signal: req.signal });
   const headers = { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store' };
   if (outcome.ok) {
     const { ok, format, rows, added, relabelled, updated, unchanged, revisionNumber, fitId, newClasses, batchId, mode } = outcome;

@@ -167,7 +167,7 @@ async function peekBytes(source: AsyncIterable<Uint8Array>, want: number): Promi
 const PEEK_BYTES = 8192;
 
 /** The first character that is not a byte-order mark or white space (ASCII), or null. */
-function firstSignificantChar(head: Uint8Array): string | null {
+export function firstSignificantChar(head: Uint8Array): string | null {
   let i = head[0] === 0xef && head[1] === 0xbb && head[2] === 0xbf ? 3 : 0;
   for (; i < head.length; i++) {
     const b = head[i];
