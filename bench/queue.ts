@@ -31,7 +31,7 @@
  */
 import { spawn, type ChildProcess } from 'node:child_process';
 import { randomUUID } from 'node:crypto';
-import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync, renameSync, rmSync, writeFileSync } from 'node:fs';
 import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -49,6 +49,12 @@ const VOTES_PER_REVIEWER = Number(process.env.BENCH_VOTES ?? 60);
 const DB_KIND = process.env.BENCH_DB === 'postgres' ? 'postgres' : 'sqlite';
 const PG_ADMIN = process.env.BORDERLINE_TEST_PG_URL || 'postgresql://postgres@127.0.0.1:5432/test';
 const SEED = 20251201;
+/**
+ * BENCH_CACHE (SQLite only, for iterating on the server code): a folder where the seeded and fitted
+ * database is kept after the first run and copied from on later runs with the same size, skipping
+ * the seed and the cold initial full pass. The relabel phase then starts with a cold fit worker.
+ */
+const CACHE = process.env.BENCH_CACHE && DB_KIND === 'sqlite' ? join(process.env.BENCH_CACHE, `queue-${ROWS}x${COLS}`) : null;
 const ROOT = fileURLToPath(new URL('..', import.meta.url));
 
 // ───────────────────────── helpers ─────────────────────────
@@ -113,8 +119,23 @@ async function serve(): Promise<void> {
     const port = typeof addr === 'object' && addr ? addr.port : 0;
     process.stdout.write(`READY ${port}\n`);
   });
+  const { monitorEventLoopDelay } = await import('node:perf_hooks');
+  const loop = monitorEventLoopDelay({ resolution: 10 });
+  loop.enable();
+  const { traceReport } = await import('../lib/server/queue/trace');
+  if (process.env.BENCH_VERBOSE === '1') {
+    // Long event-loop stalls, with the time since the process started (to line up with refit logs).
+    let last = performance.now();
+    setInterval(() => {
+      const now = performance.now();
+      if (now - last > 120) process.stderr.write(`[server] event loop stalled ${(now - last - 20).toFixed(0)} ms at ${(now / 1000).toFixed(1)} s\n`);
+      last = now;
+    }, 20).unref();
+  }
   process.on('SIGTERM', () => {
     server.close();
+    loop.disable();
+    process.stderr.write(`[server] event-loop delay p50 ${(loop.percentile(50) / 1e6).toFixed(1)} p99 ${(loop.percentile(99) / 1e6).toFixed(1)} max ${(loop.max / 1e6).toFixed(1)} ms\n${traceReport()}\n`);
     process.exit(0);
   });
 }
@@ -148,9 +169,21 @@ async function createDatabase(): Promise<Target> {
   return { url: u.toString(), drop: () => admin(`DROP DATABASE IF EXISTS "${name}" WITH (FORCE)`) };
 }
 
+interface CachedSeed {
+  teamId: string;
+  projectId: string;
+  reviewers: string[];
+  truth: [string, string][];
+}
+
 async function main(): Promise<void> {
   const target = await createDatabase();
   process.env.DATABASE_URL = target.url;
+  let cached: CachedSeed | null = null;
+  if (CACHE && existsSync(`${CACHE}.db`) && existsSync(`${CACHE}.json`)) {
+    copyFileSync(`${CACHE}.db`, target.url.slice('file:'.length));
+    cached = JSON.parse(readFileSync(`${CACHE}.json`, 'utf8')) as CachedSeed;
+  }
   process.env.NEXTAUTH_SECRET ??= 'bench-only-secret-0123456789-abcdefghijklmnopqrstuvwxyz';
   let child: ChildProcess | null = null;
   const out: Record<string, unknown> = { rows: ROWS, cols: COLS, database: DB_KIND, reviewers: REVIEWERS };
@@ -176,50 +209,55 @@ async function main(): Promise<void> {
 
     // ── data ──
     let t = performance.now();
-    const rng = xoroshiro128plus(SEED);
-    const centres = CLASSES.map(() => {
-      const c = Float64Array.from({ length: COLS }, () => gaussian(rng));
-      const norm = Math.hypot(...c);
-      return c.map((v) => (0.6 * v) / norm);
-    });
-    const team = await db.team.create({ data: { name: 'Bench team' } });
-    const lead = await db.user.create({ data: { email: `lead-${team.id}@bench.example`, name: 'Bench lead', passwordHash: 'x' } });
-    await db.membership.create({ data: { teamId: team.id, userId: lead.id, role: 'lead' } });
-    const reviewers: string[] = [];
-    for (let r = 0; r < REVIEWERS; r++) {
-      const u = await db.user.create({ data: { email: `reviewer${r}-${team.id}@bench.example`, name: `Reviewer ${r + 1}`, passwordHash: 'x' } });
-      await db.membership.create({ data: { teamId: team.id, userId: u.id, role: 'reviewer' } });
-      reviewers.push(u.id);
-    }
     const settings = { ...DEFAULT_PROJECT_SETTINGS, scale: 'l2' as const, pivotCap: 20, queueCap: 2000, applyEvery: 1 };
-    const project = await db.project.create({ data: { teamId: team.id, name: 'Bench 100k', featureCount: COLS, settings: JSON.stringify(settings) } });
-    await db.projectClass.createMany({ data: CLASSES.map((name, position) => ({ projectId: project.id, name, position })) });
-    await db.revision.create({ data: { projectId: project.id, number: 0, kind: 'import' } });
-    const truth = new Map<string, string>();
-    const columns = ['id', 'projectId', 'externalId', 'features', 'originalLabel', 'currentLabel', 'labelRevision', 'addedRevision', 'createdAt', 'updatedAt'];
-    const now = new Date();
-    const BATCH = 500;
-    for (let start = 0; start < ROWS; start += BATCH) {
-      const values: unknown[] = [];
-      const tuples: string[] = [];
-      for (let i = start; i < Math.min(ROWS, start + BATCH); i++) {
-        const k = unsafeUniformIntDistribution(0, CLASSES.length - 1, rng);
-        const x = new Float32Array(COLS);
-        for (let j = 0; j < COLS; j++) x[j] = centres[k][j] + gaussian(rng) / 16;
-        let label: string = CLASSES[k];
-        const externalId = `b${String(i).padStart(6, '0')}`;
-        if (uniform(rng) < 0.05) {
-          label = CLASSES[(k + 1 + unsafeUniformIntDistribution(0, CLASSES.length - 2, rng)) % CLASSES.length];
-          truth.set(externalId, CLASSES[k]);
-        }
-        const b = values.length;
-        tuples.push(`(${columns.map((_, c) => (provider === 'postgresql' ? `$${b + c + 1}` : '?')).join(', ')})`);
-        values.push(randomUUID(), project.id, externalId, encodeFeatures(x), label, label, 0, 0, now, now);
+    const truth = new Map<string, string>(cached?.truth ?? []);
+    const reviewers: string[] = cached ? [...cached.reviewers] : [];
+    let team = { id: cached?.teamId ?? '' };
+    let project = { id: cached?.projectId ?? '' };
+    if (cached) console.log(`  reusing the seeded and fitted database of ${CACHE}.db`);
+    else {
+      const rng = xoroshiro128plus(SEED);
+      const centres = CLASSES.map(() => {
+        const c = Float64Array.from({ length: COLS }, () => gaussian(rng));
+        const norm = Math.hypot(...c);
+        return c.map((v) => (0.6 * v) / norm);
+      });
+      team = await db.team.create({ data: { name: 'Bench team' } });
+      const lead = await db.user.create({ data: { email: `lead-${team.id}@bench.example`, name: 'Bench lead', passwordHash: 'x' } });
+      await db.membership.create({ data: { teamId: team.id, userId: lead.id, role: 'lead' } });
+      for (let r = 0; r < REVIEWERS; r++) {
+        const u = await db.user.create({ data: { email: `reviewer${r}-${team.id}@bench.example`, name: `Reviewer ${r + 1}`, passwordHash: 'x' } });
+        await db.membership.create({ data: { teamId: team.id, userId: u.id, role: 'reviewer' } });
+        reviewers.push(u.id);
       }
-      await db.$executeRawUnsafe(`INSERT INTO "Sample" (${columns.map((c) => `"${c}"`).join(', ')}) VALUES ${tuples.join(', ')}`, ...values);
+      project = await db.project.create({ data: { teamId: team.id, name: 'Bench 100k', featureCount: COLS, settings: JSON.stringify(settings) } });
+      await db.projectClass.createMany({ data: CLASSES.map((name, position) => ({ projectId: project.id, name, position })) });
+      await db.revision.create({ data: { projectId: project.id, number: 0, kind: 'import' } });
+      const columns = ['id', 'projectId', 'externalId', 'features', 'originalLabel', 'currentLabel', 'labelRevision', 'addedRevision', 'createdAt', 'updatedAt'];
+      const now = new Date();
+      const BATCH = 500;
+      for (let start = 0; start < ROWS; start += BATCH) {
+        const values: unknown[] = [];
+        const tuples: string[] = [];
+        for (let i = start; i < Math.min(ROWS, start + BATCH); i++) {
+          const k = unsafeUniformIntDistribution(0, CLASSES.length - 1, rng);
+          const x = new Float32Array(COLS);
+          for (let j = 0; j < COLS; j++) x[j] = centres[k][j] + gaussian(rng) / 16;
+          let label: string = CLASSES[k];
+          const externalId = `b${String(i).padStart(6, '0')}`;
+          if (uniform(rng) < 0.05) {
+            label = CLASSES[(k + 1 + unsafeUniformIntDistribution(0, CLASSES.length - 2, rng)) % CLASSES.length];
+            truth.set(externalId, CLASSES[k]);
+          }
+          const b = values.length;
+          tuples.push(`(${columns.map((_, c) => (provider === 'postgresql' ? `$${b + c + 1}` : '?')).join(', ')})`);
+          values.push(randomUUID(), project.id, externalId, encodeFeatures(x), label, label, 0, 0, now, now);
+        }
+        await db.$executeRawUnsafe(`INSERT INTO "Sample" (${columns.map((c) => `"${c}"`).join(', ')}) VALUES ${tuples.join(', ')}`, ...values);
+      }
+      out.seedMs = performance.now() - t;
+      console.log(`  seeded ${ROWS.toLocaleString('en-US')} samples (${truth.size} planted label errors) in ${ms(out.seedMs as number)}`);
     }
-    out.seedMs = performance.now() - t;
-    console.log(`  seeded ${ROWS.toLocaleString('en-US')} samples (${truth.size} planted label errors) in ${ms(out.seedMs as number)}`);
 
     // ── initial full pass (cold) ──
     const outcomes: { revision: number; pass: string | null; status: string; totalMs: number; engineMs: number }[] = [];
@@ -235,12 +273,21 @@ async function main(): Promise<void> {
     });
     setFitJobQueue(queue);
     await queue.start();
-    t = performance.now();
-    await writeTx(db, [{ table: 'Project', id: project.id }], (tx) => enqueueCurrentRevisionTx(tx, project.id));
-    await queue.enqueue({ projectId: project.id, revisionNumber: 0 });
-    await queue.idle(project.id);
-    out.initialFullPassMs = performance.now() - t;
-    console.log(`  initial fit (full pass: fit, pivots, ${settings.folds}-fold held-out margins; cold): ${ms(out.initialFullPassMs as number)}`);
+    if (!cached) {
+      t = performance.now();
+      await writeTx(db, [{ table: 'Project', id: project.id }], (tx) => enqueueCurrentRevisionTx(tx, project.id));
+      await queue.enqueue({ projectId: project.id, revisionNumber: 0 });
+      await queue.idle(project.id);
+      out.initialFullPassMs = performance.now() - t;
+      console.log(`  initial fit (full pass: fit, pivots, ${settings.folds}-fold held-out margins; cold): ${ms(out.initialFullPassMs as number)}`);
+      if (CACHE) {
+        mkdirSync(process.env.BENCH_CACHE as string, { recursive: true });
+        rmSync(`${CACHE}.db.tmp`, { force: true });
+        await db.$executeRawUnsafe(`VACUUM INTO '${CACHE}.db.tmp'`);
+        renameSync(`${CACHE}.db.tmp`, `${CACHE}.db`);
+        writeFileSync(`${CACHE}.json`, JSON.stringify({ teamId: team.id, projectId: project.id, reviewers, truth: [...truth] }));
+      }
+    }
 
     // ── 1. closing relabel vote → refreshed queue ──
     const scope = mintTeamScope(team.id);
@@ -284,7 +331,8 @@ async function main(): Promise<void> {
 
     // ── 2. load test over loopback ──
     await db.project.update({ where: { id: project.id }, data: { settings: JSON.stringify({ ...settings, applyEvery: Number(process.env.BENCH_APPLY_EVERY ?? 10) }) } });
-    child = spawn(process.execPath, [...process.execArgv, fileURLToPath(import.meta.url), '--serve'], {
+    const profile = process.env.BENCH_CPU_PROF ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_CPU_PROF}`] : [];
+    child = spawn(process.execPath, [...process.execArgv, ...profile, fileURLToPath(import.meta.url), '--serve'], {
       cwd: ROOT,
       env: { ...process.env, DATABASE_URL: target.url },
       stdio: ['ignore', 'pipe', 'inherit'],
@@ -300,6 +348,7 @@ async function main(): Promise<void> {
           resolve(Number(m[1]));
         }
         if (buf.length > 10_000) buf = buf.slice(-1000);
+        if (process.env.BENCH_VERBOSE === '1') for (const line of c.toString().split('\n')) if (line.includes('[refit]')) console.log(`    [server ${(performance.now() / 1000).toFixed(1)} s] ${line}`);
       });
       child?.on('exit', (code) => reject(new Error(`the bench server exited (${code})`)));
     });

@@ -2,17 +2,15 @@
 
 import { ClaimNextInput } from '@/lib/domain-queue';
 import { defineAction } from '@/lib/server/authz/define';
-import { claimNext } from '@/lib/server/queue/claim';
-import { itemForReviewer, type ReviewItemView } from '@/lib/server/queue/view';
+import { nextForReviewer } from '@/lib/server/queue/next';
+import type { ReviewItemView } from '@/lib/server/queue/view';
 
 const run = defineAction(
   { name: 'claimNextItem', input: ClaimNextInput, role: 'reviewer', resource: (i) => ({ projectId: i.projectId }) },
   async (input, caller): Promise<{ item: ReviewItemView | null }> => {
     const deps = { db: caller.db, clock: () => caller.now };
     const actor = { userId: caller.user.id, role: caller.membership.role };
-    const claimed = await claimNext(deps, caller.scope, actor, input);
-    if (!claimed) return { item: null };
-    return { item: await itemForReviewer(deps, caller.scope, actor, input.projectId, claimed.itemId) };
+    return { item: await nextForReviewer(deps, caller.scope, actor, input) };
   },
 );
 

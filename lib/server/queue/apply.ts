@@ -21,7 +21,7 @@ import { forbidden } from '../authz/errors';
 import type { DbTx } from '../db';
 import { enqueueFitTx } from '../fits/enqueue';
 import { notifyFitQueued } from '../fits/jobs';
-import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
+import { nowOf, projectInScope, type Actor, type ProjectRow, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
 import { writeTx } from './tx';
 
@@ -151,7 +151,11 @@ export async function applyChanges(deps: QueueDeps, scope: TeamScope, actor: Act
 
 /** The apply rule: applies when at least `applyEvery` changes are pending (0 = never). */
 export async function maybeAutoApply(deps: QueueDeps, scope: TeamScope, projectId: string, userId: string | null): Promise<AppliedBatch | null> {
-  const project = await projectInScope(deps.db, scope, projectId);
+  return maybeAutoApplyInProject(deps, await projectInScope(deps.db, scope, projectId), userId);
+}
+
+/** `maybeAutoApply` for a project row already read and checked against the caller's scope. */
+export async function maybeAutoApplyInProject(deps: QueueDeps, project: Pick<ProjectRow, 'id' | 'settings'>, userId: string | null): Promise<AppliedBatch | null> {
   const { applyEvery } = readProjectSettings(project.settings);
   if (applyEvery <= 0) return null;
   const pending = await deps.db.queueItem.count({ where: pendingWhere(project.id) });

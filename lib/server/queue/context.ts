@@ -34,11 +34,15 @@ export interface ProjectRow {
   readonly featureCount: number;
 }
 
-const projectSelect = { id: true, teamId: true, name: true, settings: true, currentRevision: true, featureCount: true } as const;
-
-/** The project if it belongs to the scope's team; otherwise "not found" (never "forbidden"). */
+/**
+ * The project if it belongs to the scope's team; otherwise "not found" (never "forbidden"). Raw SQL:
+ * every queue request starts here, and a one-row read through the ORM cost several times the
+ * database's own time on the server thread.
+ */
 export async function projectInScope(client: Db | DbTx, scope: TeamScope, projectId: string): Promise<ProjectRow> {
-  const project = await client.project.findFirst({ where: { id: projectId, teamId: scope.teamId }, select: projectSelect });
-  if (!project) throw notFound();
-  return project;
+  const rows = await client.$queryRaw<(Omit<ProjectRow, 'currentRevision' | 'featureCount'> & { currentRevision: number | bigint; featureCount: number | bigint })[]>`
+    SELECT "id", "teamId", "name", "settings", "currentRevision", "featureCount" FROM "Project" WHERE "id" = ${projectId} AND "teamId" = ${scope.teamId}`;
+  const p = rows[0];
+  if (!p) throw notFound();
+  return { id: p.id, teamId: p.teamId, name: p.name, settings: p.settings, currentRevision: Number(p.currentRevision), featureCount: Number(p.featureCount) };
 }

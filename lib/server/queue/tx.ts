@@ -22,6 +22,7 @@
  */
 import { Prisma } from '../generated/sqlite/client';
 import type { Db, DbTx } from '../db';
+import { record } from './trace';
 
 export type LockKey = { readonly table: 'QueueItem' | 'Project' | 'Fit'; readonly id: string };
 
@@ -109,10 +110,14 @@ async function sqliteTurn<T>(fn: () => Promise<T>): Promise<T> {
   const previous = sqliteTail;
   let release: () => void = () => {};
   sqliteTail = new Promise<void>((r) => (release = r));
+  const w0 = performance.now();
   await previous;
+  const w1 = performance.now();
+  record('sqlite.mutexWait', w1 - w0);
   try {
     return await fn();
   } finally {
+    record('sqlite.mutexHold', performance.now() - w1);
     release();
   }
 }

@@ -11,11 +11,11 @@ import { readProjectSettings, STANDING_FLAGS, type StandingFlag } from '../../do
 import { roleAtLeast } from '../../domain';
 import type { TeamScope } from '../authz/scope';
 import { forbidden, notFound } from '../authz/errors';
-import type { Db } from '../db';
-import { featureMatrixForReading } from '../fits/data';
+import { Prisma, type Db } from '../db';
+import { featureMatrixForReading, type FeatureMatrix } from '../fits/data';
 import { unpackDetail } from '../fits/standings-store';
 import { pendingChanges } from './apply';
-import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
+import { nowOf, projectInScope, type Actor, type ProjectRow, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
 import { type Scaling } from './neighbours';
 import { neighboursOfRow, prefetchNeighbours } from './neighbour-service';
@@ -99,21 +99,29 @@ function metadataOf(json: string | null): [string, string][] {
   }
 }
 
-/** The newest stored standing of a sample among done fits, in words. */
+interface StandingRow {
+  readonly fitId: string;
+  readonly margin: number;
+  readonly distance: number;
+  readonly flags: string;
+  readonly suspicion: number;
+  readonly detail: Uint8Array | null;
+  readonly revisionNumber: number;
+}
+
+/**
+ * The newest stored standing of a sample among done fits, in words. Raw SQL (as in the other reads
+ * on the "next" path): the ORM's per-query cost on the server thread was several times the
+ * database's for these one-row reads.
+ */
 export async function standingOf(db: Db, sampleId: string, label: string, fallbackNearBand: number): Promise<StandingView | null> {
-  const st = await db.standing.findFirst({
-    where: { sampleId, fit: { status: 'done' } },
-    orderBy: [{ fit: { revisionNumber: 'desc' } }, { fit: { createdAt: 'desc' } }],
-    select: {
-      fitId: true,
-      margin: true,
-      distance: true,
-      flags: true,
-      suspicion: true,
-      detail: true,
-      fit: { select: { revisionNumber: true } },
-    },
-  });
+  const rows = await db.$queryRaw<StandingRow[]>`
+    SELECT st."fitId", st."margin", st."distance", st."flags", st."suspicion", st."detail", f."revisionNumber"
+    FROM "Standing" st JOIN "Fit" f ON f."id" = st."fitId"
+    WHERE st."sampleId" = ${sampleId} AND f."status" = 'done'
+    ORDER BY f."revisionNumber" DESC, f."createdAt" DESC
+    LIMIT 1`;
+  const st = rows[0];
   if (!st) return null;
   const facts = await fitFacts(db, st.fitId, fallbackNearBand);
   const detail = unpackDetail(st.detail);
@@ -130,7 +138,7 @@ export async function standingOf(db: Db, sampleId: string, label: string, fallba
   return {
     ...words,
     fitId: st.fitId,
-    fitRevision: st.fit.revisionNumber,
+    fitRevision: Number(st.revisionNumber),
     flags,
     margin: st.margin,
     distance: st.distance,
@@ -139,14 +147,14 @@ export async function standingOf(db: Db, sampleId: string, label: string, fallba
   };
 }
 
-async function neighboursOf(db: Db, projectId: string, sampleId: string, scaling: Scaling): Promise<NeighbourView[]> {
-  const m = await featureMatrixForReading(db, projectId);
+async function neighboursOf(db: Db, m: FeatureMatrix, sampleId: string, scaling: Scaling): Promise<NeighbourView[]> {
   const row = m.rowOf.get(sampleId);
   if (row === undefined) return [];
-  const near = await neighboursOfRow(m, scaling, row);
-  const found = near;
+  const found = await neighboursOfRow(m, scaling, row);
   const ids = found.map((x) => m.sampleIds[x.row]);
-  const samples = await db.sample.findMany({ where: { id: { in: ids } }, select: { id: true, externalId: true, currentLabel: true, text: true } });
+  if (ids.length === 0) return [];
+  const samples = await db.$queryRaw<{ id: string; externalId: string; currentLabel: string; text: string | null }[]>`
+    SELECT "id", "externalId", "currentLabel", "text" FROM "Sample" WHERE "id" IN (${Prisma.join(ids)})`;
   const byId = new Map(samples.map((s) => [s.id, s]));
   return found.flatMap((x) => {
     const s = byId.get(m.sampleIds[x.row]);
@@ -155,56 +163,105 @@ async function neighboursOf(db: Db, projectId: string, sampleId: string, scaling
   });
 }
 
+const sampleSelect = { id: true, externalId: true, text: true, imageRef: true, metadata: true, currentLabel: true, labelRevision: true } as const;
+
 async function sampleView(db: Db, projectId: string, sampleId: string): Promise<SampleView> {
-  const s = await db.sample.findFirst({
-    where: { id: sampleId, projectId },
-    select: { id: true, externalId: true, text: true, imageRef: true, metadata: true, currentLabel: true, labelRevision: true },
-  });
+  const s = await db.sample.findFirst({ where: { id: sampleId, projectId }, select: sampleSelect });
   if (!s) throw notFound();
   return { ...s, metadata: metadataOf(s.metadata) };
 }
 
 async function classNames(db: Db, projectId: string): Promise<string[]> {
-  return (await db.projectClass.findMany({ where: { projectId }, orderBy: { position: 'asc' }, select: { name: true } })).map((c) => c.name);
+  const rows = await db.$queryRaw<{ name: string }[]>`SELECT "name" FROM "ProjectClass" WHERE "projectId" = ${projectId} ORDER BY "position" ASC`;
+  return rows.map((c) => c.name);
 }
 
-/** Searches neighbours ahead for the items "next" is likely to hand out soon. */
-async function prefetchUpcoming(db: Db, projectId: string, scaling: Scaling, now: Date): Promise<void> {
+/** How many of the next items a prefetch searches ahead, and how often per project at most. */
+const PREFETCH_ITEMS = 32;
+const PREFETCH_EVERY_MS = 1000;
+const prefetchHolder = globalThis as typeof globalThis & { __borderlinePrefetchAt?: Map<string, number> };
+
+/**
+ * Searches neighbours ahead for the items "next" is likely to hand out soon. At most once a second
+ * per project: with many reviewers every "next" would otherwise repeat the same read of the queue
+ * head, and a second's worth of claims takes far fewer than PREFETCH_ITEMS items.
+ */
+async function prefetchUpcoming(db: Db, m: FeatureMatrix, scaling: Scaling, now: Date): Promise<void> {
+  const last = (prefetchHolder.__borderlinePrefetchAt ??= new Map());
+  const at = Date.now();
+  if (at - (last.get(m.projectId) ?? 0) < PREFETCH_EVERY_MS) return;
+  last.set(m.projectId, at);
   // The items "next" hands out next: awaiting votes and not under someone's live lease.
   const upcoming = await db.queueItem.findMany({
-    where: { projectId, state: { in: ['open', 'one-vote'] }, OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }] },
+    where: { projectId: m.projectId, state: { in: ['open', 'one-vote'] }, OR: [{ leaseUserId: null }, { leaseExpiresAt: { lte: now } }] },
     orderBy: [{ state: 'asc' }, { suspicion: 'desc' }, { id: 'asc' }],
-    take: 24,
+    take: PREFETCH_ITEMS,
     select: { sampleId: true },
   });
-  const m = await featureMatrixForReading(db, projectId);
   const rows = upcoming.map((u) => m.rowOf.get(u.sampleId)).filter((r): r is number => r !== undefined);
   prefetchNeighbours(m, scaling, rows);
 }
 
 /** The item the caller holds the lease on, as the reviewer screen shows it (no votes). */
 export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
+  const project = await projectInScope(deps.db, scope, projectId);
+  return reviewerItemView(deps, project, actor, itemId);
+}
+
+interface ItemRow {
+  readonly id: string;
+  readonly round: number | bigint;
+  readonly reasons: string;
+  readonly suspicion: number;
+  readonly leaseUserId: string | null;
+  /** a Date, or the stored text on drivers that return it as such */
+  readonly leaseExpiresAt: Date | string | null;
+  readonly sampleId: string;
+  readonly externalId: string;
+  readonly text: string | null;
+  readonly imageRef: string | null;
+  readonly metadata: string | null;
+  readonly currentLabel: string;
+  readonly labelRevision: number | bigint;
+}
+
+/**
+ * `itemForReviewer` for a project already checked against the caller's scope ("next" reads the
+ * project once for the claim and the view). One query for the item with its sample; the class
+ * list, the standing and the neighbours are then read side by side.
+ */
+export async function reviewerItemView(deps: QueueDeps, project: ProjectRow, actor: Actor, itemId: string): Promise<ReviewItemView> {
   const { db } = deps;
-  const project = await projectInScope(db, scope, projectId);
   const settings = readProjectSettings(project.settings);
-  const item = await db.queueItem.findFirst({
-    where: { id: itemId, projectId: project.id },
-    select: { id: true, round: true, reasons: true, suspicion: true, leaseUserId: true, leaseExpiresAt: true, sampleId: true },
-  });
+  const rows = await db.$queryRaw<ItemRow[]>`
+    SELECT q."id", q."round", q."reasons", q."suspicion", q."leaseUserId", q."leaseExpiresAt", q."sampleId",
+      s."externalId", s."text", s."imageRef", s."metadata", s."currentLabel", s."labelRevision"
+    FROM "QueueItem" q JOIN "Sample" s ON s."id" = q."sampleId"
+    WHERE q."id" = ${itemId} AND q."projectId" = ${project.id}`;
+  const item = rows[0];
   if (!item) throw notFound();
-  const sample = await sampleView(db, project.id, item.sampleId);
+  const sample: SampleView = {
+    id: item.sampleId,
+    externalId: item.externalId,
+    text: item.text,
+    imageRef: item.imageRef,
+    metadata: metadataOf(item.metadata),
+    currentLabel: item.currentLabel,
+    labelRevision: Number(item.labelRevision),
+  };
+  const matrix = await featureMatrixForReading(db, project.id);
   const [classes, standing, neighbours] = await Promise.all([
     classNames(db, project.id),
     standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand),
-    neighboursOf(db, project.id, item.sampleId, settings.scale),
+    neighboursOf(db, matrix, item.sampleId, settings.scale),
   ]);
-  void prefetchUpcoming(db, project.id, settings.scale, nowOf(deps)).catch(() => undefined);
+  void prefetchUpcoming(db, matrix, settings.scale, nowOf(deps)).catch(() => undefined);
   return {
     itemId: item.id,
-    round: item.round,
+    round: Number(item.round),
     reasons: item.reasons ? item.reasons.split(',') : [],
     suspicion: item.suspicion,
-    leaseExpiresAt: item.leaseUserId === actor.userId && item.leaseExpiresAt ? item.leaseExpiresAt.toISOString() : null,
+    leaseExpiresAt: item.leaseUserId === actor.userId && item.leaseExpiresAt !== null ? new Date(item.leaseExpiresAt).toISOString() : null,
     sample,
     classes,
     standing,

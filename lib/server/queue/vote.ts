@@ -27,11 +27,12 @@ import { roleAtLeast } from '../../domain';
 import { QUEUE_TIMING, type VoteChoice } from '../../domain-queue';
 import type { TeamScope } from '../authz/scope';
 import { ActionError, badRequest, conflict, forbidden } from '../authz/errors';
-import { isUniqueViolation, type DbTx } from '../db';
+import { isUniqueViolation, type Db, type DbTx } from '../db';
 import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
 import { writeTx } from './tx';
-import { maybeAutoApply, type AppliedBatch } from './apply';
+import { maybeAutoApplyInProject, type AppliedBatch } from './apply';
+import { traced } from './trace';
 
 export interface VoteOutcome {
   readonly voteId: string;
@@ -55,6 +56,73 @@ async function checkChoice(tx: DbTx, projectId: string, currentLabel: string, ch
   if (choice.label === currentLabel) throw badRequest(QUEUE_MESSAGES.sameLabel, { label: QUEUE_MESSAGES.sameLabel });
 }
 
+async function classExists(db: Db, projectId: string, name: string): Promise<boolean> {
+  const rows = await db.$queryRaw<{ id: string }[]>`SELECT "id" FROM "ProjectClass" WHERE "projectId" = ${projectId} AND "name" = ${name} LIMIT 1`;
+  return rows.length > 0;
+}
+
+/** The refusals of `checkChoice`, with the class lookup done beforehand. */
+function judgeChoice(knownClass: boolean, currentLabel: string, choice: VoteChoice): void {
+  if (choice.decision !== 'relabel') return;
+  if (!knownClass) throw badRequest(QUEUE_MESSAGES.unknownClass(choice.label), { label: QUEUE_MESSAGES.unknownClass(choice.label) });
+  if (choice.label === currentLabel) throw badRequest(QUEUE_MESSAGES.sameLabel, { label: QUEUE_MESSAGES.sameLabel });
+}
+
+interface ItemForVote {
+  readonly id: string;
+  readonly state: string;
+  readonly leaseUserId: string | null;
+  readonly leaseExpiresAt: Date | null;
+  readonly currentLabel: string;
+  readonly votes: { id: string; userId: string; decision: string; label: string | null }[];
+}
+
+type ItemVoteRow = {
+  id: string;
+  state: string;
+  leaseUserId: string | null;
+  leaseExpiresAt: Date | string | null;
+  currentLabel: string;
+  voteId: string | null;
+  voteUserId: string | null;
+  decision: string | null;
+  label: string | null;
+};
+
+/** The item, its sample's current label and its votes, in one statement (one row per vote). */
+async function itemWithVotes(tx: DbTx, projectId: string, itemId: string): Promise<ItemForVote | null> {
+  const rows = await tx.$queryRaw<ItemVoteRow[]>`
+    SELECT q."id", q."state", q."leaseUserId", q."leaseExpiresAt", s."currentLabel",
+      v."id" AS "voteId", v."userId" AS "voteUserId", v."decision", v."label"
+    FROM "QueueItem" q
+    JOIN "Sample" s ON s."id" = q."sampleId"
+    LEFT JOIN "Vote" v ON v."queueItemId" = q."id"
+    WHERE q."id" = ${itemId} AND q."projectId" = ${projectId}
+    ORDER BY v."createdAt" ASC, v."id" ASC`;
+  const head = rows[0];
+  if (!head) return null;
+  return {
+    id: head.id,
+    state: head.state,
+    leaseUserId: head.leaseUserId,
+    leaseExpiresAt: head.leaseExpiresAt === null ? null : new Date(head.leaseExpiresAt),
+    currentLabel: head.currentLabel,
+    votes: rows.flatMap((r) => (r.voteId !== null && r.voteUserId !== null && r.decision !== null ? [{ id: r.voteId, userId: r.voteUserId, decision: r.decision, label: r.label }] : [])),
+  };
+}
+
+/** A vote's effect on its item: the new state (with the outcome when it closes); the lease is released. */
+async function setItemState(tx: DbTx, itemId: string, to: { state: 'one-vote' | 'split' } | { state: 'closed'; outcome: string; finalLabel: string | null; closedAt: Date }): Promise<void> {
+  if (to.state === 'closed') {
+    await tx.$executeRaw`UPDATE "QueueItem" SET "state" = 'closed', "outcome" = ${to.outcome}, "finalLabel" = ${to.finalLabel}, "closedAt" = ${to.closedAt},
+        "leaseUserId" = NULL, "leaseExpiresAt" = NULL, "updatedAt" = ${new Date()}
+      WHERE "id" = ${itemId}`;
+  } else {
+    await tx.$executeRaw`UPDATE "QueueItem" SET "state" = ${to.state}, "leaseUserId" = NULL, "leaseExpiresAt" = NULL, "updatedAt" = ${new Date()}
+      WHERE "id" = ${itemId}`;
+  }
+}
+
 function agrees(a: { decision: string; label: string | null }, b: { decision: string; label: string | null }): boolean {
   return a.decision === b.decision && (a.decision === 'keep' || a.label === b.label);
 }
@@ -69,19 +137,12 @@ export async function castVote(
   const { db } = deps;
   const project = await projectInScope(db, scope, input.projectId);
   const me = actor.userId;
-  const recorded = await writeTx(db, [{ table: 'QueueItem', id: input.itemId }], async (tx) => {
+  // Read before the transaction (classes are only ever added), judged inside it in the usual order
+  // of refusals: the less the transaction does, the shorter SQLite's write lock is held.
+  const knownClass = input.decision === 'relabel' ? await classExists(db, project.id, input.label) : true;
+  const recorded = await traced('vote.tx', () => writeTx(db, [{ table: 'QueueItem', id: input.itemId }], async (tx) => {
     const now = nowOf(deps);
-    const item = await tx.queueItem.findFirst({
-      where: { id: input.itemId, projectId: project.id },
-      select: {
-        id: true,
-        state: true,
-        leaseUserId: true,
-        leaseExpiresAt: true,
-        sample: { select: { currentLabel: true } },
-        votes: { select: { id: true, userId: true, decision: true, label: true } },
-      },
-    });
+    const item = await itemWithVotes(tx, project.id, input.itemId);
     if (!item) throw itemGone();
     if (item.state === 'closed') throw conflict(QUEUE_MESSAGES.closed);
     if (item.state === 'split') throw conflict(QUEUE_MESSAGES.split);
@@ -89,7 +150,7 @@ export async function castVote(
     if (item.leaseUserId && item.leaseUserId !== me && item.leaseExpiresAt && item.leaseExpiresAt > now) {
       throw conflict(QUEUE_MESSAGES.leaseTaken);
     }
-    await checkChoice(tx, project.id, item.sample.currentLabel, input);
+    judgeChoice(knownClass, item.currentLabel, input);
     const label = input.decision === 'relabel' ? input.label : null;
     let vote;
     try {
@@ -103,31 +164,26 @@ export async function castVote(
     }
     const others = item.votes;
     if (others.length === 0) {
-      await tx.queueItem.update({ where: { id: item.id }, data: { state: 'one-vote', leaseUserId: null, leaseExpiresAt: null } });
+      await setItemState(tx, item.id, { state: 'one-vote' });
       return { voteId: vote.id, result: 'recorded' as const, now };
     }
     const first = others[0];
     if (agrees(first, { decision: input.decision, label })) {
-      await tx.queueItem.update({
-        where: { id: item.id },
-        data: {
-          state: 'closed',
-          outcome: input.decision === 'keep' ? 'kept' : 'relabelled',
-          finalLabel: input.decision === 'keep' ? item.sample.currentLabel : label,
-          closedAt: now,
-          leaseUserId: null,
-          leaseExpiresAt: null,
-        },
+      await setItemState(tx, item.id, {
+        state: 'closed',
+        outcome: input.decision === 'keep' ? 'kept' : 'relabelled',
+        finalLabel: input.decision === 'keep' ? item.currentLabel : label,
+        closedAt: now,
       });
       return { voteId: vote.id, result: 'closed' as const, now, relabel: input.decision === 'relabel' };
     }
-    await tx.queueItem.update({ where: { id: item.id }, data: { state: 'split', leaseUserId: null, leaseExpiresAt: null } });
+    await setItemState(tx, item.id, { state: 'split' });
     return { voteId: vote.id, result: 'split' as const, now };
-  });
+  }));
 
   let applied: AppliedBatch | null = null;
   if (recorded.result === 'closed' && 'relabel' in recorded && recorded.relabel) {
-    applied = await maybeAutoApply(deps, scope, project.id, me);
+    applied = await traced('vote.apply', () => maybeAutoApplyInProject(deps, project, me));
   }
   const undoEnd = new Date(recorded.now.getTime() + QUEUE_TIMING.undoSeconds * 1000);
   const appliedThis = applied !== null && applied.itemIds.includes(input.itemId);
@@ -237,6 +293,6 @@ export async function decideSplit(
     });
     return relabel ? ('relabelled' as const) : ('kept' as const);
   });
-  const applied = outcome === 'relabelled' ? await maybeAutoApply(deps, scope, project.id, actor.userId) : null;
+  const applied = outcome === 'relabelled' ? await maybeAutoApplyInProject(deps, project, actor.userId) : null;
   return { itemId: input.itemId, outcome, applied };
 }
