@@ -1,5 +1,6 @@
 // npm run worker — a background worker of the PostgreSQL job system (refits, imports).
 // See lib/server/worker/main.ts and README "Running for a team".
+import { log } from '../lib/server/log';
 import { exitOnStartupError } from '../lib/server/startup';
 import { startWorkerProcess } from '../lib/server/worker/main';
 
@@ -9,11 +10,11 @@ try {
   const stop = (signal: string) => {
     if (stopping) return;
     stopping = true;
-    process.stdout.write(`${JSON.stringify({ time: new Date().toISOString(), level: 'info', msg: `received ${signal}`, worker: worker.workerId })}\n`);
+    log.info(`received ${signal}`, { worker: worker.workerId });
     worker.stop().then(
       () => process.exit(0),
       (e: unknown) => {
-        console.error(e);
+        log.error('worker did not stop cleanly', { error: e instanceof Error ? e.message : String(e) });
         process.exit(1);
       },
     );

@@ -15,6 +15,7 @@ import { PrismaPg } from '@prisma/adapter-pg';
 import type { SqlDriverAdapter, SqlMigrationAwareDriverAdapterFactory } from '@prisma/driver-adapter-utils';
 import { PrismaClient as PostgresqlPrismaClient } from './generated/postgresql/client';
 import { Prisma, PrismaClient as SqlitePrismaClient } from './generated/sqlite/client';
+import { log } from './log';
 import { env, type DatabaseConfig } from './env';
 
 /** The Prisma client type used by all server code (whatever the database). */
@@ -67,22 +68,39 @@ export class SqliteAdapterWithPragmas implements SqlMigrationAwareDriverAdapterF
 }
 
 export type CreateDbOptions = {
-  /** Prisma log levels to print (default: warnings and errors). */
+  /** Prisma log levels to print as Prisma formats them (default: warnings and errors as JSON log lines). */
   log?: ('query' | 'info' | 'warn' | 'error')[];
 };
 
+const EVENT_LOG = [
+  { emit: 'event', level: 'warn' },
+  { emit: 'event', level: 'error' },
+] as const;
+
+/** Prisma's warnings and errors as one JSON line each (lib/server/log.ts) instead of text blocks. */
+function forwardPrismaLog(client: { $on(event: 'warn' | 'error', cb: (e: { message: string; target: string }) => void): void }): void {
+  client.$on('warn', (e) => log.warn('prisma warning', { target: e.target, detail: e.message }));
+  client.$on('error', (e) => log.error('prisma error', { target: e.target, detail: e.message }));
+}
+
 /** A new client for one database. Prefer `db()`; this is for scripts and tests. */
 export function createDb(config: DatabaseConfig, options: CreateDbOptions = {}): Db {
-  const log = options.log ?? ['warn', 'error'];
   if (config.provider === 'sqlite') {
     mkdirSync(dirname(config.file), { recursive: true });
-    return new SqlitePrismaClient({ adapter: new SqliteAdapterWithPragmas(config.file), log });
+    const adapter = new SqliteAdapterWithPragmas(config.file);
+    if (options.log) return new SqlitePrismaClient({ adapter, log: options.log });
+    const client = new SqlitePrismaClient({ adapter, log: [...EVENT_LOG] });
+    forwardPrismaLog(client);
+    return client as unknown as Db;
   }
   const adapter = new PrismaPg({ connectionString: config.url, connectionTimeoutMillis: 10_000 });
   // The PostgreSQL client is generated from the same model as the SQLite one; its delegates and
   // results have the same shapes (PostgreSQL only adds options such as `mode: 'insensitive'`),
   // so it is used through the canonical type. This is the one place the two types meet.
-  return new PostgresqlPrismaClient({ adapter, log }) as unknown as Db;
+  if (options.log) return new PostgresqlPrismaClient({ adapter, log: options.log }) as unknown as Db;
+  const client = new PostgresqlPrismaClient({ adapter, log: [...EVENT_LOG] });
+  forwardPrismaLog(client);
+  return client as unknown as Db;
 }
 
 type Cached = { key: string; client: Db };

@@ -11,6 +11,7 @@
  */
 import { db as defaultDb, type Db } from '../db';
 import { env, type DatabaseConfig } from '../env';
+import { log } from '../log';
 import { workerStandingsWriter } from './standings-writer';
 import { writeTx } from '../queue/tx';
 import { enqueueCurrentRevisionTx } from './enqueue';
@@ -27,6 +28,8 @@ export { processProject, type ProcessOutcome } from './run-fit';
 export { InProcessFitQueue } from './in-process';
 export { JobSystemFitQueue, startFitJobWorker, type FitJobWorker, type FitJobWorkerOptions } from './job-system';
 export { inlineEngine, persistentWorkerEngine, workerEngine, type EngineRunner } from './engine';
+
+const refitLog = log.child({ component: 'refit' });
 
 const holder = globalThis as typeof globalThis & { __borderlineFitWorkerStart?: Promise<FitJobQueue> };
 
@@ -52,7 +55,7 @@ export function ensureFitWorker(client?: Db, config?: DatabaseConfig): Promise<F
   holder.__borderlineFitWorkerStart = queue.start().then(
     () => queue,
     (e: unknown) => {
-      console.error('[refit] the fit worker could not start', e);
+      refitLog.error('the fit worker could not start', { error: e instanceof Error ? e.message : String(e) });
       setFitJobQueue(null);
       holder.__borderlineFitWorkerStart = undefined;
       throw e;
@@ -70,7 +73,7 @@ function ensureJobSystemQueue(): Promise<FitJobQueue> {
       return queue;
     },
     (e: unknown) => {
-      console.error('[refit] could not reach the job system', e);
+      refitLog.error('could not reach the job system', { error: e instanceof Error ? e.message : String(e) });
       holder.__borderlineFitWorkerStart = undefined;
       throw e;
     },
@@ -92,7 +95,7 @@ export async function runInitialFit(projectId: string, client: Db = defaultDb(),
   await client.fit.updateMany({ where: { projectId, status: 'running' }, data: { status: 'queued', progress: 0 } });
   let last: ProcessOutcome | null = null;
   for (;;) {
-    const outcome = await processProject(client, projectId, { engine, followUp: false, log: (line) => console.log(`[refit] ${line}`) });
+    const outcome = await processProject(client, projectId, { engine, followUp: false, log: (line) => refitLog.info(line) });
     if (!outcome) return last;
     last = outcome;
   }

@@ -22,6 +22,8 @@
  * - the PostgreSQL job system (job-system.ts): `enqueue` sends a pg-boss job keyed by project (a
  *   waiting job absorbs later requests); `npm run worker` processes call `processProject` with a lease.
  */
+import { log } from '../log';
+
 export interface FitRequest {
   readonly projectId: string;
   readonly revisionNumber: number;
@@ -63,6 +65,6 @@ export async function notifyFitQueued(request: FitRequest): Promise<void> {
     await queue.enqueue(request);
   } catch (e) {
     // The Fit row is committed: a worker's sweep (or the in-process poll) still finds it.
-    console.error(`[refit] could not send the refit job of project ${request.projectId}: ${e instanceof Error ? e.message : String(e)}`);
+    log.error('could not send the refit job', { component: 'refit', projectId: request.projectId, error: e instanceof Error ? e.message : String(e) });
   }
 }

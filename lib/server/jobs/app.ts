@@ -4,6 +4,7 @@
  */
 import type PgBoss from 'pg-boss';
 import { env } from '../env';
+import { log } from '../log';
 import { startJobSystem } from './boss';
 
 const holder = globalThis as typeof globalThis & { __borderlineAppBoss?: Promise<PgBoss> };
@@ -18,7 +19,7 @@ export function appJobSystem(): Promise<PgBoss> {
     connectionString: e.database.url,
     role: 'app',
     poolSize: 2,
-    onError: (error) => console.error(JSON.stringify({ time: new Date().toISOString(), level: 'error', msg: 'job system error', error: error.message })),
+    onError: (error) => log.error('job system error', { error: error.message }),
   }).catch((error: unknown) => {
     holder.__borderlineAppBoss = undefined;
     throw error;

@@ -18,14 +18,10 @@ import { startFitJobWorker, type FitJobWorker } from '../fits/job-system';
 import { startImportJobWorker } from '../import/job';
 import { workerStandingsWriter } from '../fits/standings-writer';
 import { startJobSystem } from '../jobs/boss';
+import { log as rootLog } from '../log';
 import { prepareDatabaseOrExit } from '../startup';
 
 export type WorkerLog = (msg: string, fields?: Record<string, unknown>) => void;
-
-/** One JSON object per line: time, level, msg, worker, and the fields given. */
-export function jsonLineLog(base: Record<string, unknown>, write: (line: string) => void = (l) => process.stdout.write(`${l}\n`)): WorkerLog {
-  return (msg, fields) => write(JSON.stringify({ time: new Date().toISOString(), level: 'info', msg, ...base, ...fields }));
-}
 
 export interface RunningWorker {
   readonly workerId: string;
@@ -41,14 +37,15 @@ export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Pro
     throw new Error('npm run worker serves the job system, but BORDERLINE_JOBS=in-process keeps background work in the app.');
   }
   const workerId = `${hostname()}:${process.pid}:${randomUUID().slice(0, 8)}`;
-  const log = options.log ?? jsonLineLog({ worker: workerId });
+  const logger = rootLog.child({ worker: workerId });
+  const log: WorkerLog = options.log ?? ((msg, fields) => logger.info(msg, fields));
   await prepareDatabaseOrExit({ log: (line) => log(line) });
   const boss: PgBoss = await startJobSystem({
     connectionString: e.database.url,
     role: 'worker',
     expireInSeconds: Number(process.env.BORDERLINE_JOB_EXPIRE_SECONDS ?? 3600),
     maintenanceIntervalSeconds: Number(process.env.BORDERLINE_JOB_MAINTENANCE_SECONDS ?? 30),
-    onError: (error) => log('job system error', { level: 'error', error: error.message }),
+    onError: (error) => logger.error('job system error', { error: error.message }),
   });
   const leaseMs = e.BORDERLINE_FIT_LEASE_SECONDS * 1000;
   const fits: FitJobWorker = await startFitJobWorker({
