@@ -326,9 +326,21 @@ class BatchLease {
   }
 }
 
-/** The staged file: its chunks in `seq` order (the next one read while the current one is parsed). */
+/**
+ * The staged file: its chunks in `seq` order (the next one read while the current one is parsed).
+ * Read as base64 text (PostgreSQL's encode): about three times faster than Prisma's own bytes
+ * decoding of a 4 MB value (bench/import-job.ts).
+ */
 export async function* readChunks(db: Db, batchId: string, count: number): AsyncGenerator<Uint8Array> {
-  const fetch = (seq: number) => db.importChunk.findUnique({ where: { batchId_seq: { batchId, seq } }, select: { data: true } });
+  const fetch = async (seq: number) => {
+    const rows = await db.$queryRawUnsafe<{ data: string }[]>(
+      `SELECT encode("data", 'base64') AS "data" FROM "ImportChunk" WHERE "batchId" = $1 AND "seq" = $2`,
+      batchId,
+      seq,
+    );
+    // Node's base64 decoder skips the line breaks PostgreSQL puts every 76 characters.
+    return rows.length === 0 ? null : { data: Buffer.from(rows[0].data, 'base64') };
+  };
   let next = count > 0 ? fetch(0) : null;
   for (let seq = 0; seq < count; seq++) {
     const chunk = await next;
