@@ -6,8 +6,9 @@
  *
  * workerData: { provider: 'sqlite', file, gate } | { provider: 'postgresql', url }
  * SQLite has one write lock per database: before each batch the worker waits while the server
- * thread has writes waiting or running (`gate`, see lib/server/queue/tx.ts writerGate), so reviewers'
- * votes and claims go first.
+ * thread has writes waiting or running, and flags the statement it runs so that the server thread
+ * waits for it without blocking its event loop (`gate`, see lib/server/queue/tx.ts writerGate and
+ * `turn` below); reviewers' votes and claims go first.
  * Protocol:
  *   ← { type: 'write', id, fitId, rows: StandingColumns }   → { type: 'done', id, count }
  *   ← { type: 'prune', id, fitIds: string[] }                → { type: 'done', id, count }
@@ -65,11 +66,41 @@ function finite(v: number): number {
 const standingId = (fitId: string, i: number) => `${fitId}:${i.toString().padStart(8, '0')}`;
 const sleep = (ms: number) => new Promise<void>((r) => setTimeout(r, ms));
 
-/** A short breather after every batch, then wait until the server thread has no write pending. */
+/** A short breather after every batch. */
 async function pause(): Promise<void> {
   await sleep(PAUSE_MS);
-  const gate = config.provider === 'sqlite' ? config.gate : undefined;
-  for (let waited = 0; gate && Atomics.load(gate, 0) > 0 && waited < 10_000; waited += 2) await sleep(2);
+}
+
+// Slots of the gate (lib/server/queue/tx.ts writerGate): the server thread's pending writes, and
+// this thread's "inside a statement" flag, which the server thread waits on before it writes.
+const PENDING = 0;
+const BUSY = 1;
+
+/**
+ * Runs one SQLite statement when the server thread has no write pending (waiting at most 10 s, so
+ * the standings are not starved for ever), with the busy flag raised for its duration. The flag is
+ * set before the pending count is read again, and the server thread raises its count before it
+ * reads the flag, so the two never write at once and the server thread never blocks on the lock.
+ */
+async function turn<T>(statement: () => T): Promise<T> {
+  const gate = config.provider === 'sqlite' && config.gate && config.gate.length > BUSY ? config.gate : undefined;
+  if (!gate) return statement();
+  for (let waited = 0; ; waited += 2) {
+    const patient = waited < 10_000;
+    if (!patient || Atomics.load(gate, PENDING) === 0) {
+      Atomics.store(gate, BUSY, 1);
+      if (!patient || Atomics.load(gate, PENDING) === 0) break;
+      Atomics.store(gate, BUSY, 0);
+      Atomics.notify(gate, BUSY);
+    }
+    await sleep(2);
+  }
+  try {
+    return statement();
+  } finally {
+    Atomics.store(gate, BUSY, 0);
+    Atomics.notify(gate, BUSY);
+  }
 }
 
 function rowValues(fitId: string, r: StandingColumns, i: number): unknown[] {
@@ -122,9 +153,8 @@ async function write(fitId: string, r: StandingColumns): Promise<number> {
     const count = end - start;
     if (config.provider === 'sqlite') {
       const tuple = `(${COLUMNS.map(() => '?').join(', ')})`;
-      openSqlite()
-        .prepare(`INSERT INTO "Standing" (${COLUMNS.map((c) => `"${c}"`).join(', ')}) VALUES ${Array(count).fill(tuple).join(', ')}`)
-        .run(...values);
+      const insert = openSqlite().prepare(`INSERT INTO "Standing" (${COLUMNS.map((c) => `"${c}"`).join(', ')}) VALUES ${Array(count).fill(tuple).join(', ')}`);
+      await turn(() => insert.run(...values));
     } else {
       const tuples: string[] = [];
       for (let k = 0; k < count; k++) tuples.push(`(${COLUMNS.map((_, c) => `$${k * COLUMNS.length + c + 1}`).join(', ')})`);
@@ -142,7 +172,8 @@ async function prune(fitIds: readonly string[]): Promise<number> {
       const args = [fitId, standingId(fitId, lo), standingId(fitId, lo + BATCH)];
       let changed: number;
       if (config.provider === 'sqlite') {
-        changed = openSqlite().prepare('DELETE FROM "Standing" WHERE "fitId" = ? AND "id" >= ? AND "id" < ?').run(...args).changes;
+        const remove = openSqlite().prepare('DELETE FROM "Standing" WHERE "fitId" = ? AND "id" >= ? AND "id" < ?');
+        changed = (await turn(() => remove.run(...args))).changes;
       } else {
         changed = (await openPool().query('DELETE FROM "Standing" WHERE "fitId" = $1 AND "id" >= $2 AND "id" < $3', args)).rowCount ?? 0;
       }
@@ -151,8 +182,10 @@ async function prune(fitIds: readonly string[]): Promise<number> {
       if (changed === 0) break;
     }
     // Rows stored under other ids (older formats): whatever is left of the fit, in one statement.
-    if (config.provider === 'sqlite') removed += openSqlite().prepare('DELETE FROM "Standing" WHERE "fitId" = ?').run(fitId).changes;
-    else removed += (await openPool().query('DELETE FROM "Standing" WHERE "fitId" = $1', [fitId])).rowCount ?? 0;
+    if (config.provider === 'sqlite') {
+      const rest = openSqlite().prepare('DELETE FROM "Standing" WHERE "fitId" = ?');
+      removed += (await turn(() => rest.run(fitId))).changes;
+    } else removed += (await openPool().query('DELETE FROM "Standing" WHERE "fitId" = $1', [fitId])).rowCount ?? 0;
   }
   return removed;
 }

@@ -75,24 +75,51 @@ let sqliteTail: Promise<void> = Promise.resolve();
 
 const gateHolder = globalThis as typeof globalThis & { __borderlineWriterGate?: Int32Array };
 
+/** Slots of `writerGate()`. */
+export const GATE_PENDING = 0;
+export const GATE_BACKGROUND_BUSY = 1;
+
 /**
- * A counter shared with background writer threads (SharedArrayBuffer): the number of this thread's
- * writes waiting or running on SQLite. A writer thread with its own connection (the standings
- * writer) checks it before each batch and waits while it is non-zero, so the requests of reviewers
- * get the database's single write lock first instead of polling for it on SQLite's busy handler.
+ * Two counters shared with background writer threads that have their own SQLite connection (the
+ * standings writer), in a SharedArrayBuffer:
+ * - [GATE_PENDING] the number of this thread's writes waiting or running. A background writer
+ *   checks it before each batch and waits while it is non-zero, so reviewers' requests get the
+ *   database's single write lock first.
+ * - [GATE_BACKGROUND_BUSY] 1 while a background writer runs a statement. This thread waits for it
+ *   to drop to 0 before it starts a write, asynchronously: better-sqlite3 waits for a lock held by
+ *   another connection inside the synchronous call (SQLite's busy handler sleeps), which would
+ *   freeze the event loop — every request of the process — for as long as the other statement runs.
+ * Both sides set their own slot before reading the other's (sequentially consistent atomics), so
+ * at most one of them goes ahead.
  */
 export function writerGate(): Int32Array {
-  gateHolder.__borderlineWriterGate ??= new Int32Array(new SharedArrayBuffer(4));
+  if (!gateHolder.__borderlineWriterGate || gateHolder.__borderlineWriterGate.length < 2) {
+    gateHolder.__borderlineWriterGate = new Int32Array(new SharedArrayBuffer(8));
+  }
   return gateHolder.__borderlineWriterGate;
 }
 
 async function gated<T>(fn: () => Promise<T>): Promise<T> {
   const gate = writerGate();
-  Atomics.add(gate, 0, 1);
+  Atomics.add(gate, GATE_PENDING, 1);
   try {
     return await fn();
   } finally {
-    Atomics.sub(gate, 0, 1);
+    Atomics.sub(gate, GATE_PENDING, 1);
+  }
+}
+
+// Atomics.waitAsync (Node 16+) is newer than the TypeScript library this project compiles against.
+type WaitAsync = (array: Int32Array, index: number, value: number, timeoutMs: number) => { async: boolean; value: Promise<string> | string };
+const waitAsync = (Atomics as unknown as { waitAsync?: WaitAsync }).waitAsync;
+
+/** Resolves once no background writer is inside a statement (see writerGate). */
+async function backgroundIdle(): Promise<void> {
+  const gate = writerGate();
+  while (Atomics.load(gate, GATE_BACKGROUND_BUSY) !== 0) {
+    const w = waitAsync?.(gate, GATE_BACKGROUND_BUSY, 1, 50);
+    if (w?.async) await w.value;
+    else if (!w) await new Promise((r) => setTimeout(r, 1));
   }
 }
 
@@ -112,6 +139,7 @@ async function sqliteTurn<T>(fn: () => Promise<T>): Promise<T> {
   sqliteTail = new Promise<void>((r) => (release = r));
   const w0 = performance.now();
   await previous;
+  await backgroundIdle();
   const w1 = performance.now();
   record('sqlite.mutexWait', w1 - w0);
   try {

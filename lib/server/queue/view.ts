@@ -106,22 +106,42 @@ interface StandingRow {
   readonly flags: string;
   readonly suspicion: number;
   readonly detail: Uint8Array | null;
-  readonly revisionNumber: number;
+  readonly revisionNumber: number | bigint;
+}
+
+/** Fit.createdAt by fit id: it never changes, so it is read once per fit. */
+const createdAtCache = new Map<string, number>();
+
+async function fitCreatedAt(db: Db, fitId: string): Promise<number> {
+  const hit = createdAtCache.get(fitId);
+  if (hit !== undefined) return hit;
+  const rows = await db.$queryRaw<{ createdAt: Date | string }[]>`SELECT "createdAt" FROM "Fit" WHERE "id" = ${fitId}`;
+  const at = rows[0] ? new Date(rows[0].createdAt).getTime() : 0;
+  if (createdAtCache.size > 10_000) createdAtCache.clear();
+  createdAtCache.set(fitId, at);
+  return at;
 }
 
 /**
- * The newest stored standing of a sample among done fits, in words. Raw SQL (as in the other reads
- * on the "next" path): the ORM's per-query cost on the server thread was several times the
- * database's for these one-row reads.
+ * The newest stored standing of a sample among done fits, in words: highest revision, then the fit
+ * requested last. Raw SQL, like the other reads on the "next" path (the ORM's cost per one-row read
+ * on the server thread was several times the database's).
+ *
+ * The query reads only Fit columns stored before `Fit.model`: on SQLite a column stored after that
+ * blob (such as createdAt) is reached by walking the blob's overflow pages, milliseconds per fit row.
+ * A sample has a standing in a handful of fits; the createdAt tie-break between two fits of the same
+ * revision (a quick pass and its follow-up full pass) comes from a per-fit memory.
  */
 export async function standingOf(db: Db, sampleId: string, label: string, fallbackNearBand: number): Promise<StandingView | null> {
   const rows = await db.$queryRaw<StandingRow[]>`
     SELECT st."fitId", st."margin", st."distance", st."flags", st."suspicion", st."detail", f."revisionNumber"
     FROM "Standing" st JOIN "Fit" f ON f."id" = st."fitId"
-    WHERE st."sampleId" = ${sampleId} AND f."status" = 'done'
-    ORDER BY f."revisionNumber" DESC, f."createdAt" DESC
-    LIMIT 1`;
-  const st = rows[0];
+    WHERE st."sampleId" = ${sampleId} AND f."status" = 'done'`;
+  let st: StandingRow | undefined;
+  for (const r of rows) {
+    if (!st || Number(r.revisionNumber) > Number(st.revisionNumber)) st = r;
+    else if (Number(r.revisionNumber) === Number(st.revisionNumber) && (await fitCreatedAt(db, r.fitId)) > (await fitCreatedAt(db, st.fitId))) st = r;
+  }
   if (!st) return null;
   const facts = await fitFacts(db, st.fitId, fallbackNearBand);
   const detail = unpackDetail(st.detail);
