@@ -412,6 +412,23 @@ function fitView(f: { id: string; status: string; revisionNumber: number; progre
   return { id: f.id, status: f.status, revisionNumber: f.revisionNumber, progress: f.progress, pass, error: f.error, finishedAt: f.finishedAt ? f.finishedAt.toISOString() : null };
 }
 
+/**
+ * The project's newest done fit (highest revision, then requested last) without ordering every done
+ * fit by createdAt: on SQLite that column lies after the model blob (see standingOf), and a project
+ * keeps every fit it ever ran.
+ */
+async function newestDoneFitId(db: Db, projectId: string): Promise<string | null> {
+  const top = await db.$queryRaw<{ id: string }[]>`
+    SELECT "id" FROM "Fit" WHERE "projectId" = ${projectId} AND "status" = 'done' AND "revisionNumber" = (
+      SELECT MAX("revisionNumber") FROM "Fit" WHERE "projectId" = ${projectId} AND "status" = 'done')`;
+  let best: { id: string; at: number } | null = null;
+  for (const f of top) {
+    const at = await fitCreatedAt(db, f.id);
+    if (!best || at > best.at) best = { id: f.id, at };
+  }
+  return best?.id ?? null;
+}
+
 /** Fit status, queue progress by state and who holds a lease now. */
 export async function queueStatus(deps: QueueDeps, scope: TeamScope, projectId: string): Promise<QueueStatusView> {
   const { db } = deps;
@@ -424,7 +441,7 @@ export async function queueStatus(deps: QueueDeps, scope: TeamScope, projectId: 
       orderBy: [{ status: 'asc' }, { revisionNumber: 'desc' }, { createdAt: 'desc' }],
       select: fitSelect,
     }),
-    db.fit.findFirst({ where: { projectId: project.id, status: 'done' }, orderBy: [{ revisionNumber: 'desc' }, { createdAt: 'desc' }], select: fitSelect }),
+    newestDoneFitId(db, project.id).then((id) => (id ? db.fit.findUnique({ where: { id }, select: fitSelect }) : null)),
     db.queueItem.groupBy({ by: ['state', 'outcome'], where: { projectId: project.id }, _count: { _all: true } }),
     db.queueItem.count({ where: { projectId: project.id, state: 'closed', outcome: 'relabelled', appliedRevision: null } }),
     db.queueItem.findMany({
