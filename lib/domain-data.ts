@@ -51,7 +51,7 @@ export const IMPORT_MODE_SUMMARY: Readonly<Record<ImportMode, string>> = {
 export const IMPORT_FORMATS = ['csv', 'jsonl'] as const;
 export type ImportFormat = (typeof IMPORT_FORMATS)[number];
 
-export const IMPORT_STATUSES = ['staged', 'applied', 'failed'] as const;
+export const IMPORT_STATUSES = ['staged', 'queued', 'running', 'applied', 'failed'] as const;
 export type ImportStatus = (typeof IMPORT_STATUSES)[number];
 
 export const EXPORT_FORMATS = ['csv', 'jsonl', 'report'] as const;

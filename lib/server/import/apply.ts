@@ -13,6 +13,7 @@ import { randomBytes } from 'node:crypto';
 import type { ImportFormat, ImportMode } from '../../domain-data';
 import { conflict, notFound } from '../authz/errors';
 import type { TeamScope } from '../authz/scope';
+import { providerOf } from '../queue/tx';
 import type { Db, DbTx } from '../db';
 import { recordAudit } from '../auth/audit';
 import { requestRefit } from '../refit-request';
@@ -27,21 +28,11 @@ export type Dialect = 'sqlite' | 'postgresql';
  */
 export const IN_LIST_LIMIT = 500;
 
-const dialects = new WeakMap<object, Dialect>();
-
-/** Which database a client talks to (probed once per client). */
+/** Which database a client talks to. */
 export async function dialectOf(client: Db): Promise<Dialect> {
-  const known = dialects.get(client);
-  if (known) return known;
-  let dialect: Dialect;
-  try {
-    await client.$queryRawUnsafe('SELECT sqlite_version() AS v');
-    dialect = 'sqlite';
-  } catch {
-    dialect = 'postgresql';
-  }
-  dialects.set(client, dialect);
-  return dialect;
+  // The generated client knows its provider; probing with a SQLite-only query would log a
+  // database error on PostgreSQL.
+  return providerOf(client);
 }
 
 /** A fresh opaque row id (same alphabet as the schema's cuid ids). */
