@@ -7,6 +7,8 @@
  * - The pipeline API (`importJsonResponse`) answers once, with a status a script can test:
  *   200 imported, 400 refused (problems listed), 409 concurrent change.
  */
+import { databaseOutage } from '../db-outage';
+import { log } from '../log';
 import { DATA_LIMITS } from '../../domain-data';
 import { badRequest, conflict, notFound, tooLarge } from '../authz/errors';
 import type { TeamScope } from '../authz/scope';
@@ -163,6 +165,7 @@ export type ImportStreamLine =
   | { type: 'error'; status: number; error: string };
 
 const FAULT = 'Something went wrong on our side and nothing was imported. Try again in a moment.';
+const OUTAGE = 'The database is not answering right now, so nothing was imported; try again in a moment.';
 
 /** Runs the import and answers with JSON lines of progress, then the outcome. */
 export function importProgressResponse(scope: TeamScope, projectId: string, input: Omit<ImportInput, 'source'>, req: Request): Response {
@@ -189,9 +192,12 @@ export function importProgressResponse(scope: TeamScope, projectId: string, inpu
           });
           send({ type: 'result', outcome });
         } catch (error) {
-          const status = errorStatus(error);
-          if (status === 500) console.error('[import] failed', error);
-          send({ type: 'error', status, error: status === 500 ? FAULT : error instanceof Error ? error.message : FAULT });
+          const outage = databaseOutage(error);
+          const status = outage ? 503 : errorStatus(error);
+          if (outage) log.warn('database unavailable', { endpoint: 'import', outage });
+          else if (status === 500) log.error('import failed', { error: error instanceof Error ? (error.stack ?? error.message) : String(error) });
+          const message = outage ? OUTAGE : status === 500 ? FAULT : error instanceof Error ? error.message : FAULT;
+          send({ type: 'error', status, error: message });
         } finally {
           if (open) {
             open = false;
