@@ -4,10 +4,10 @@
  * Lease rules (QUEUE_TIMING.leaseSeconds, 90 s):
  * - An item can be leased by one user at a time. A lease is free when it has no holder or its
  *   expiry has passed. Choosing and taking it is one UPDATE whose subquery picks the item
- *   (`takeLease`), so of two reviewers racing for the same item exactly one gets it, on SQLite and
- *   on PostgreSQL; the other gets the next candidate. A claim is one short transaction of two
- *   statements (take, then release the caller's other leases): "next" is the hottest request of
- *   the queue, and on SQLite every statement inside a write transaction holds up all other writers.
+ *   (`candidate`), so of two reviewers racing for the same item exactly one gets it, on SQLite and
+ *   on PostgreSQL; the other gets the next candidate. A claim is two statements in one short
+ *   transaction on SQLite, one statement on PostgreSQL (see `claimInProject`): "next" is the
+ *   hottest request of the queue.
  * - Claiming again while holding a live lease returns the same item and extends the lease (a
  *   reload, or the screen's periodic renewal, does not lose the item).
  * - Only items awaiting votes are handed out (open, one-vote), never one the caller has voted on,
@@ -22,8 +22,8 @@ import type { TeamScope } from '../authz/scope';
 import { forbidden } from '../authz/errors';
 import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
-import { Prisma, type DbTx } from '../db';
-import { providerOf, writeTx, type Provider } from './tx';
+import { Prisma, type Db } from '../db';
+import { isTransient, providerOf, writeTx } from './tx';
 
 export interface Claimed {
   readonly itemId: string;
@@ -42,26 +42,26 @@ export async function claimNext(
 }
 
 /**
- * The claim itself, for a project already checked against the caller's scope: one transaction of
- * two statements (see `takeLease`), then the caller's other leases in the project are released.
+ * The claim itself, for a project already checked against the caller's scope: the lease is taken
+ * (see `candidate`) and the caller's other leases in the project are released.
+ * - SQLite: one transaction of two statements; the first is the claim UPDATE, a write, so the
+ *   transaction takes the write lock at once (no separate lock statement, see tx.ts) and the choice
+ *   and the take are atomic.
+ * - PostgreSQL: one statement, no interactive transaction (whose BEGIN / COMMIT round trips held a
+ *   pooled connection while reviewers queued): the candidate row is locked `FOR UPDATE SKIP
+ *   LOCKED`, so reviewers racing for the head of the queue each lock a different row instead of
+ *   waiting for one another; a row leased meanwhile by a committed claim is re-checked against the
+ *   conditions under the lock (READ COMMITTED) and passed over. Of racing reviewers exactly one
+ *   gets each item.
  */
 export async function claimInProject(deps: QueueDeps, projectId: string, me: string, skipItemId?: string): Promise<Claimed | null> {
   const { db } = deps;
   const now = nowOf(deps);
   const until = new Date(now.getTime() + QUEUE_TIMING.leaseSeconds * 1000);
   const undoStart = new Date(now.getTime() - QUEUE_TIMING.undoSeconds * 1000);
-  const provider = providerOf(db);
-  // The claim UPDATE is the transaction's first statement and a write, so on SQLite it takes the
-  // write lock at once (no separate lock statement needed, see tx.ts).
-  return writeTx(db, [], async (tx) => {
-    const id = await takeLease(tx, provider, { projectId, me, skip: skipItemId ?? '', now, until, undoStart });
-    // One lease per reviewer: the item skipped and any other (stale) lease of mine in the project go.
-    if (id !== null || skipItemId) {
-      await tx.$executeRaw`UPDATE "QueueItem" SET "leaseUserId" = NULL, "leaseExpiresAt" = NULL, "updatedAt" = ${new Date()}
-        WHERE "projectId" = ${projectId} AND "leaseUserId" = ${me} AND "id" <> ${id ?? ''}`;
-    }
-    return id === null ? null : { itemId: id, leaseExpiresAt: until };
-  });
+  const args: TakeArgs = { projectId, me, skip: skipItemId ?? '', now, until, undoStart };
+  const id = providerOf(db) === 'postgresql' ? await claimPostgres(db, args) : await claimSqlite(db, args);
+  return id === null ? null : { itemId: id, leaseExpiresAt: until };
 }
 
 interface TakeArgs {
@@ -75,43 +75,71 @@ interface TakeArgs {
 }
 
 /**
- * One conditional UPDATE that picks and leases the item in a single statement: the caller's own
- * live lease first (renewed), else the first free item awaiting votes in the queue's order. The
- * candidate conditions are those of the module comment; a live lease of the caller's own is kept
- * even while another reviewer's vote on it is inside its undo window (the caller got it back by an
- * undo, or held it before that vote).
- * - SQLite runs the statement under the database write lock, so the choice and the take are atomic.
- * - PostgreSQL: `FOR UPDATE` in the subquery locks the chosen row; a reviewer racing for the same
- *   row waits for the first one's commit, and READ COMMITTED then re-checks the row against the
- *   conditions (now leased → not matching) and moves on to the next row in order, so of racing
- *   reviewers exactly one gets each item.
+ * The item to hand out: the caller's own live lease first (renewed by the claim), else the first
+ * free item awaiting votes in the queue's order. The candidate conditions are those of the module
+ * comment; a live lease of the caller's own is kept even while another reviewer's vote on it is
+ * inside its undo window (the caller got it back by an undo, or held it before that vote).
  */
-async function takeLease(tx: DbTx, provider: Provider, a: TakeArgs): Promise<string | null> {
-  const lockClause = provider === 'postgresql' ? Prisma.sql`FOR UPDATE` : Prisma.empty;
-  const rows = await tx.$queryRaw<{ id: string }[]>`
-    UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${new Date()}
-    WHERE "id" = (
-      SELECT q."id" FROM "QueueItem" q
-      WHERE q."projectId" = ${a.projectId}
-        AND q."state" IN ('open', 'one-vote')
-        AND q."id" <> ${a.skip}
-        AND (q."leaseUserId" IS NULL OR q."leaseExpiresAt" <= ${a.now} OR q."leaseUserId" = ${a.me})
-        AND NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."userId" = ${a.me})
-        AND (
-          (q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now})
-          OR NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."createdAt" > ${a.undoStart})
-        )
-      ORDER BY
-        CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN 0 ELSE 1 END,
-        CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN q."leaseExpiresAt" END DESC,
-        q."state" ASC,
-        q."suspicion" DESC,
-        q."id" ASC
-      LIMIT 1
-      ${lockClause}
-    )
-    RETURNING "id"`;
-  return rows[0]?.id ?? null;
+function candidate(a: TakeArgs): Prisma.Sql {
+  return Prisma.sql`
+    SELECT q."id" FROM "QueueItem" q
+    WHERE q."projectId" = ${a.projectId}
+      AND q."state" IN ('open', 'one-vote')
+      AND q."id" <> ${a.skip}
+      AND (q."leaseUserId" IS NULL OR q."leaseExpiresAt" <= ${a.now} OR q."leaseUserId" = ${a.me})
+      AND NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."userId" = ${a.me})
+      AND (
+        (q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now})
+        OR NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."createdAt" > ${a.undoStart})
+      )
+    ORDER BY
+      CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN 0 ELSE 1 END,
+      CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN q."leaseExpiresAt" END DESC,
+      q."state" ASC,
+      q."suspicion" DESC,
+      q."id" ASC
+    LIMIT 1`;
+}
+
+async function claimSqlite(db: Db, a: TakeArgs): Promise<string | null> {
+  return writeTx(db, [], async (tx) => {
+    const rows = await tx.$queryRaw<{ id: string }[]>`
+      UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${new Date()}
+      WHERE "id" = (${candidate(a)})
+      RETURNING "id"`;
+    const id = rows[0]?.id ?? null;
+    // One lease per reviewer: the item skipped and any other (stale) lease of mine in the project go.
+    if (id !== null || a.skip) {
+      await tx.$executeRaw`UPDATE "QueueItem" SET "leaseUserId" = NULL, "leaseExpiresAt" = NULL, "updatedAt" = ${new Date()}
+        WHERE "projectId" = ${a.projectId} AND "leaseUserId" = ${a.me} AND "id" <> ${id ?? ''}`;
+    }
+    return id;
+  });
+}
+
+async function claimPostgres(db: Db, a: TakeArgs): Promise<string | null> {
+  const updatedAt = new Date();
+  for (let attempt = 0; ; attempt++) {
+    try {
+      // Data-modifying CTEs run once each, on one snapshot; `released` never touches the taken row.
+      const rows = await db.$queryRaw<{ id: string }[]>`
+        WITH picked AS (${candidate(a)} FOR UPDATE SKIP LOCKED),
+        taken AS (
+          UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${updatedAt}
+          WHERE "id" IN (SELECT "id" FROM picked)
+          RETURNING "id"),
+        released AS (
+          UPDATE "QueueItem" SET "leaseUserId" = NULL, "leaseExpiresAt" = NULL, "updatedAt" = ${updatedAt}
+          WHERE "projectId" = ${a.projectId} AND "leaseUserId" = ${a.me} AND "id" NOT IN (SELECT "id" FROM picked)
+            AND (EXISTS (SELECT 1 FROM picked) OR "id" = ${a.skip})
+          RETURNING "id")
+        SELECT "id" FROM taken`;
+      return rows[0]?.id ?? null;
+    } catch (e) {
+      if (!isTransient(e) || attempt >= 7) throw e;
+      await new Promise((r) => setTimeout(r, Math.min(400, 10 * 2 ** attempt) * (0.5 + Math.random())));
+    }
+  }
 }
 
 /** Gives up the caller's lease on an item (e.g. leaving the screen). */
