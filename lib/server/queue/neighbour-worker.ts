@@ -7,12 +7,13 @@
  *   ← { type: 'matrix', view: MatrixView }
  *   ← { type: 'query', id, projectId, fingerprint, scaling, rows: number[], k, urgent }
  * Urgent queries (a reviewer waiting for "next") are answered before queued prefetches: queries are
- * buffered and taken one per event-loop turn, urgent first.
+ * buffered, and each event-loop turn answers the waiting urgent queries together with queued
+ * prefetches (up to BATCH_ROWS rows) in one pass over the matrix.
  *   → { type: 'result', id, results: Neighbour[][] }   (one list per requested row)
  *   → { type: 'error', id, message }
  */
 import { parentPort } from 'node:worker_threads';
-import { nearestNeighbours, type MatrixView, type Neighbour, type Scaling } from './neighbours';
+import { nearestNeighboursOfRows, type MatrixView, type Neighbour, type Scaling } from './neighbours';
 
 type Query = { type: 'query'; id: number; projectId: string; fingerprint: string; scaling: Scaling; rows: number[]; k: number; urgent?: boolean };
 type Incoming = { type: 'matrix'; view: MatrixView } | Query;
@@ -24,25 +25,60 @@ let scheduled = false;
 const port = parentPort;
 if (!port) throw new Error('lib/server/queue/neighbour-worker.ts must run in a worker thread');
 
-function answer(m: Query): void {
-  const view = matrices.get(m.projectId);
-  if (!view || view.fingerprint !== m.fingerprint) {
-    port?.postMessage({ type: 'error', id: m.id, message: 'matrix not loaded' });
+/** Prefetched rows searched together with the waiting queries in one pass (see nearestNeighboursOfRows). */
+const BATCH_ROWS = 64;
+
+/** Answers a group of queries on one matrix and scaling with one pass over the matrix. */
+function answer(group: Query[]): void {
+  const first = group[0];
+  const view = matrices.get(first.projectId);
+  if (!view || view.fingerprint !== first.fingerprint) {
+    for (const q of group) port?.postMessage({ type: 'error', id: q.id, message: 'matrix not loaded' });
     return;
   }
   try {
-    const results: Neighbour[][] = m.rows.map((row) => nearestNeighbours(view, m.scaling, row, m.k));
-    port?.postMessage({ type: 'result', id: m.id, results });
+    const rows = group.flatMap((q) => q.rows);
+    const found = nearestNeighboursOfRows(view, first.scaling, rows, first.k);
+    let at = 0;
+    for (const q of group) {
+      const results: Neighbour[][] = found.slice(at, at + q.rows.length);
+      at += q.rows.length;
+      port?.postMessage({ type: 'result', id: q.id, results });
+    }
   } catch (e) {
-    port?.postMessage({ type: 'error', id: m.id, message: e instanceof Error ? e.message : String(e) });
+    for (const q of group) port?.postMessage({ type: 'error', id: q.id, message: e instanceof Error ? e.message : String(e) });
   }
+}
+
+const sameSearch = (a: Query, b: Query) => a.projectId === b.projectId && a.fingerprint === b.fingerprint && a.scaling === b.scaling && a.k === b.k;
+
+/**
+ * Takes the next query (urgent first) and every other waiting query of the same search — all
+ * urgent ones, then prefetches — up to BATCH_ROWS rows, so that a pass over the matrix serves them all.
+ */
+function nextGroup(): Query[] {
+  const head = urgent[0] ?? later[0];
+  if (!head) return [];
+  const group: Query[] = [];
+  let rows = 0;
+  for (const list of [urgent, later]) {
+    for (let i = 0; i < list.length && rows < BATCH_ROWS; ) {
+      const q = list[i];
+      if (sameSearch(q, head) && (rows === 0 || rows + q.rows.length <= BATCH_ROWS)) {
+        group.push(q);
+        rows += q.rows.length;
+        list.splice(i, 1);
+      } else i++;
+    }
+  }
+  return group;
 }
 
 function pump(): void {
   scheduled = false;
-  const next = urgent.shift() ?? later.shift();
-  if (!next) return;
-  answer(next);
+  const group = nextGroup();
+  if (group.length === 0) return;
+  answer(group);
   if (urgent.length > 0 || later.length > 0) {
     scheduled = true;
     setImmediate(pump);

@@ -67,50 +67,81 @@ export interface Neighbour {
 
 /** The k nearest rows to `row` (itself excluded), nearest first; ties by row index. */
 export function nearestNeighbours(m: MatrixView, scaling: Scaling, row: number, k = 5): Neighbour[] {
-  const { X, rows: n, cols: d } = m;
-  const p = prepare(m, scaling);
-  const q = row * d;
-  const best: Neighbour[] = [];
-  const consider = (i: number, dist: number) => {
+  return nearestNeighboursOfRows(m, scaling, [row], k)[0];
+}
+
+/** Keeps the k smallest (distance, row) pairs seen, in order. */
+class Best {
+  readonly list: Neighbour[] = [];
+  constructor(private readonly k: number) {}
+  consider(i: number, dist: number): void {
+    const best = this.list;
+    const k = this.k;
     if (best.length === k && dist >= best[k - 1].distance) return;
     let pos = best.length;
     while (pos > 0 && (best[pos - 1].distance > dist || (best[pos - 1].distance === dist && best[pos - 1].row > i))) pos--;
     best.splice(pos, 0, { row: i, distance: dist });
     if (best.length > k) best.pop();
-  };
+  }
+}
+
+/**
+ * `nearestNeighbours` for several rows in ONE pass over the matrix: the search is bound by reading
+ * the n·d matrix from memory, not by the arithmetic, so each row of the matrix is compared with
+ * every query while it is in cache. Same arithmetic per pair as one query at a time, so the same
+ * answers.
+ */
+export function nearestNeighboursOfRows(m: MatrixView, scaling: Scaling, rows: readonly number[], k = 5): Neighbour[][] {
+  const { X, rows: n, cols: d } = m;
+  const p = prepare(m, scaling);
+  const best = rows.map(() => new Best(k));
+  const Q = rows.length;
   if (p.scaling === 'l2' && p.weights) {
-    const wq = p.weights[row];
+    const w = p.weights;
     for (let i = 0; i < n; i++) {
-      if (i === row) continue;
-      let dot = 0;
       const o = i * d;
-      for (let j = 0; j < d; j++) dot += X[o + j] * X[q + j];
-      const cos = dot * p.weights[i] * wq;
-      consider(i, Math.sqrt(Math.max(0, (p.weights[i] > 0 ? 1 : 0) + (wq > 0 ? 1 : 0) - 2 * cos)));
+      for (let t = 0; t < Q; t++) {
+        const row = rows[t];
+        if (i === row) continue;
+        const q = row * d;
+        let dot = 0;
+        for (let j = 0; j < d; j++) dot += X[o + j] * X[q + j];
+        const wq = w[row];
+        const cos = dot * w[i] * wq;
+        best[t].consider(i, Math.sqrt(Math.max(0, (w[i] > 0 ? 1 : 0) + (wq > 0 ? 1 : 0) - 2 * cos)));
+      }
     }
   } else if (p.scaling === 'standard' && p.weights) {
     const w = p.weights;
     for (let i = 0; i < n; i++) {
-      if (i === row) continue;
-      let s = 0;
       const o = i * d;
-      for (let j = 0; j < d; j++) {
-        const v = (X[o + j] - X[q + j]) * w[j];
-        s += v * v;
+      for (let t = 0; t < Q; t++) {
+        const row = rows[t];
+        if (i === row) continue;
+        const q = row * d;
+        let s = 0;
+        for (let j = 0; j < d; j++) {
+          const v = (X[o + j] - X[q + j]) * w[j];
+          s += v * v;
+        }
+        best[t].consider(i, Math.sqrt(s));
       }
-      consider(i, Math.sqrt(s));
     }
   } else {
     for (let i = 0; i < n; i++) {
-      if (i === row) continue;
-      let s = 0;
       const o = i * d;
-      for (let j = 0; j < d; j++) {
-        const v = X[o + j] - X[q + j];
-        s += v * v;
+      for (let t = 0; t < Q; t++) {
+        const row = rows[t];
+        if (i === row) continue;
+        const q = row * d;
+        let s = 0;
+        for (let j = 0; j < d; j++) {
+          const v = X[o + j] - X[q + j];
+          s += v * v;
+        }
+        best[t].consider(i, Math.sqrt(s));
       }
-      consider(i, Math.sqrt(s));
     }
   }
-  return best;
+  return best.map((b) => b.list);
 }
