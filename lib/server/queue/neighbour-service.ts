@@ -111,7 +111,8 @@ export function prefetchNeighbours(m: FeatureMatrix, scaling: Scaling, rows: num
   const st = state();
   const todo = rows.filter((r) => !st.cache.has(keyOf(m, scaling, r)) && !st.inflight.has(keyOf(m, scaling, r)));
   if (todo.length === 0) return;
-  // One query per row, so a reviewer's urgent search waits for at most one prefetched row.
+  // One query per row: the worker searches a couple of them per pass, so a reviewer's urgent search
+  // waits for at most that pass (neighbour-worker.ts).
   for (const r of todo) {
     const key = keyOf(m, scaling, r);
     const one = search(m, scaling, [r], false).then((res) => {

@@ -7,8 +7,8 @@
  *   ← { type: 'matrix', view: MatrixView }
  *   ← { type: 'query', id, projectId, fingerprint, scaling, rows: number[], k, urgent }
  * Urgent queries (a reviewer waiting for "next") are answered before queued prefetches: queries are
- * buffered, and each event-loop turn answers the waiting urgent queries together with queued
- * prefetches (up to BATCH_ROWS rows) in one pass over the matrix.
+ * buffered; each event-loop turn answers either the waiting urgent queries or a couple of prefetched
+ * rows, in one pass over the matrix.
  *   → { type: 'result', id, results: Neighbour[][] }   (one list per requested row)
  *   → { type: 'error', id, message }
  */
@@ -25,8 +25,14 @@ let scheduled = false;
 const port = parentPort;
 if (!port) throw new Error('lib/server/queue/neighbour-worker.ts must run in a worker thread');
 
-/** Prefetched rows searched together with the waiting queries in one pass (see nearestNeighboursOfRows). */
-const BATCH_ROWS = 64;
+/**
+ * Rows searched in one pass over the matrix (see nearestNeighboursOfRows): every waiting urgent
+ * query up to URGENT_ROWS, else up to PREFETCH_ROWS prefetched rows. The search is mostly
+ * arithmetic, so a pass costs about its row count times one search: prefetch passes stay short so
+ * that a reviewer's search never waits long behind them.
+ */
+const URGENT_ROWS = 16;
+const PREFETCH_ROWS = 2;
 
 /** Answers a group of queries on one matrix and scaling with one pass over the matrix. */
 function answer(group: Query[]): void {
@@ -52,24 +58,21 @@ function answer(group: Query[]): void {
 
 const sameSearch = (a: Query, b: Query) => a.projectId === b.projectId && a.fingerprint === b.fingerprint && a.scaling === b.scaling && a.k === b.k;
 
-/**
- * Takes the next query (urgent first) and every other waiting query of the same search — all
- * urgent ones, then prefetches — up to BATCH_ROWS rows, so that a pass over the matrix serves them all.
- */
+/** The next query (urgent first) with the other waiting queries of its kind and search, up to the row cap. */
 function nextGroup(): Query[] {
-  const head = urgent[0] ?? later[0];
+  const list = urgent.length > 0 ? urgent : later;
+  const cap = urgent.length > 0 ? URGENT_ROWS : PREFETCH_ROWS;
+  const head = list[0];
   if (!head) return [];
   const group: Query[] = [];
   let rows = 0;
-  for (const list of [urgent, later]) {
-    for (let i = 0; i < list.length && rows < BATCH_ROWS; ) {
-      const q = list[i];
-      if (sameSearch(q, head) && (rows === 0 || rows + q.rows.length <= BATCH_ROWS)) {
-        group.push(q);
-        rows += q.rows.length;
-        list.splice(i, 1);
-      } else i++;
-    }
+  for (let i = 0; i < list.length && rows < cap; ) {
+    const q = list[i];
+    if (sameSearch(q, head) && (rows === 0 || rows + q.rows.length <= cap)) {
+      group.push(q);
+      rows += q.rows.length;
+      list.splice(i, 1);
+    } else i++;
   }
   return group;
 }

@@ -196,15 +196,19 @@ async function classNames(db: Db, projectId: string): Promise<string[]> {
   return rows.map((c) => c.name);
 }
 
-/** How many of the next items a prefetch searches ahead, and how often per project at most. */
-const PREFETCH_ITEMS = 32;
-const PREFETCH_EVERY_MS = 1000;
+/**
+ * How many of the next items a prefetch searches ahead, and how often per project at most. Far
+ * ahead: neighbours depend on the features only, so a search done once serves every later claim of
+ * the item, across refits; rows already cached or under way are not searched again.
+ */
+const PREFETCH_ITEMS = 500;
+const PREFETCH_EVERY_MS = 2000;
 const prefetchHolder = globalThis as typeof globalThis & { __borderlinePrefetchAt?: Map<string, number> };
 
 /**
- * Searches neighbours ahead for the items "next" is likely to hand out soon. At most once a second
- * per project: with many reviewers every "next" would otherwise repeat the same read of the queue
- * head, and a second's worth of claims takes far fewer than PREFETCH_ITEMS items.
+ * Searches neighbours ahead for the items "next" is likely to hand out, in the order it hands them
+ * out. At most every PREFETCH_EVERY_MS per project: with many reviewers every "next" would otherwise
+ * repeat the same read of the queue.
  */
 async function prefetchUpcoming(db: Db, m: FeatureMatrix, scaling: Scaling, now: Date): Promise<void> {
   const last = (prefetchHolder.__borderlinePrefetchAt ??= new Map());
