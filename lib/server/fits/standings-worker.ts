@@ -48,7 +48,11 @@ type Message = { type: 'write'; id: number; fitId: string; rows: StandingColumns
 // The server connection's PRAGMAs (lib/server/db.ts SQLITE_PRAGMAS), repeated here so this thread
 // does not load the ORM; busy_timeout comes from the constructor's `timeout`.
 const SQLITE_PRAGMAS = ['PRAGMA journal_mode = WAL', 'PRAGMA foreign_keys = ON', 'PRAGMA synchronous = FULL'];
-const BATCH = 500;
+/**
+ * Rows per statement: on SQLite the server thread's writes wait for the statement under way (see
+ * `turn`), so statements are kept short; PostgreSQL writers do not block each other on a table.
+ */
+const BATCH = (workerData as Config).provider === 'sqlite' ? 100 : 500;
 const PAUSE_MS = 3;
 const COLUMNS = ['id', 'fitId', 'sampleId', 'margin', 'distance', 'slack', 'alpha', 'svKind', 'oofMargin', 'flags', 'suspicion', 'predicted', 'detail'];
 
@@ -75,6 +79,7 @@ async function pause(): Promise<void> {
 // this thread's "inside a statement" flag, which the server thread waits on before it writes.
 const PENDING = 0;
 const BUSY = 1;
+const QUIET_MS = 10;
 
 /**
  * Runs one SQLite statement when the server thread has no write pending (waiting at most 10 s, so
@@ -85,9 +90,15 @@ const BUSY = 1;
 async function turn<T>(statement: () => T): Promise<T> {
   const gate = config.provider === 'sqlite' && config.gate && config.gate.length > BUSY ? config.gate : undefined;
   if (!gate) return statement();
+  // Start only after the server thread has had no write pending for QUIET_MS: requests come in
+  // bursts, and a batch started in the gap between two of them would hold up the second.
+  let quietSince = -1;
   for (let waited = 0; ; waited += 2) {
     const patient = waited < 10_000;
-    if (!patient || Atomics.load(gate, PENDING) === 0) {
+    const idle = Atomics.load(gate, PENDING) === 0;
+    if (!idle) quietSince = -1;
+    else if (quietSince < 0) quietSince = waited;
+    if (!patient || (idle && waited - quietSince >= QUIET_MS)) {
       Atomics.store(gate, BUSY, 1);
       if (!patient || Atomics.load(gate, PENDING) === 0) break;
       Atomics.store(gate, BUSY, 0);
