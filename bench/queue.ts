@@ -28,6 +28,12 @@
  * BORDERLINE_TEST_PG_URL, default postgresql://postgres@127.0.0.1:5432/test, a temporary database
  * is created and dropped), BENCH_RELABELS (5), BENCH_REVIEWERS (20), BENCH_SECONDS, BENCH_VOTES.
  * Output: a table on stdout and bench/out/queue.json. Temporary databases are removed at the end.
+ *
+ * Diagnosis (all off by default): BENCH_CACHE (below), BENCH_VERBOSE=1 (the server's refit log
+ * lines and event-loop stalls over 100 ms), BORDERLINE_QUEUE_TRACE=1 (stage timings of "next" and
+ * vote, printed when the server stops), BENCH_SQL_PROFILE=1 (SQLite: time per statement text inside
+ * better-sqlite3, i.e. synchronous time on the server thread), BENCH_CPU_PROF=<dir> (V8 CPU
+ * profiles of the server process's threads).
  */
 import { spawn, type ChildProcess } from 'node:child_process';
 import { randomUUID } from 'node:crypto';
@@ -122,7 +128,33 @@ async function serve(): Promise<void> {
   const { monitorEventLoopDelay } = await import('node:perf_hooks');
   const loop = monitorEventLoopDelay({ resolution: 10 });
   loop.enable();
-  const { traceReport } = await import('../lib/server/queue/trace');
+  const { traceReport, record } = await import('../lib/server/queue/trace');
+  if (process.env.BENCH_SQL_PROFILE === '1') {
+    // Wraps every prepared statement of better-sqlite3 (the driver of Prisma's SQLite adapter).
+    const { createRequire } = await import('node:module');
+    const req = createRequire(import.meta.url);
+    const Database = req('better-sqlite3') as { prototype: { prepare: (sql: string) => Record<string, unknown> } };
+    const prep = Database.prototype.prepare;
+    Database.prototype.prepare = function (this: unknown, sql: string) {
+      const key = sql.replace(/\s+/g, ' ').replace(/(\?, )+\?/g, '?…').replace(/(\(\?…\), )+/g, '').slice(0, 110);
+      const p0 = performance.now();
+      const st = prep.call(this, sql);
+      record(`prep ${key}`, performance.now() - p0);
+      for (const m of ['all', 'get', 'run', 'iterate']) {
+        const f = st[m] as (...a: unknown[]) => unknown;
+        if (typeof f !== 'function') continue;
+        st[m] = (...a: unknown[]) => {
+          const t0 = performance.now();
+          try {
+            return f.apply(st, a);
+          } finally {
+            record(`sql ${key}`, performance.now() - t0);
+          }
+        };
+      }
+      return st;
+    };
+  }
   if (process.env.BENCH_VERBOSE === '1') {
     // Long event-loop stalls, with the time since the process started (to line up with refit logs).
     let last = performance.now();
