@@ -52,7 +52,15 @@ function startWorker(url: string, dataDir: string): Promise<ChildProcess> {
   return new Promise((resolve, reject) => {
     let out = '';
     child.stdout?.on('data', (b: Buffer) => {
-      out += b.toString();
+      const text = b.toString();
+      out += text;
+      if (process.env.BENCH_VERBOSE) {
+        for (const line of text.split('\n')) {
+          if (!line.startsWith('{')) continue;
+          const entry = JSON.parse(line) as { msg?: string };
+          if (entry.msg?.startsWith('fit ')) process.stdout.write(`  ${entry.msg}\n`);
+        }
+      }
       if (out.includes('"msg":"worker started"')) resolve(child);
     });
     child.once('exit', (code) => reject(new Error(`worker exited with ${code}: ${out}`)));
