@@ -56,6 +56,48 @@ export interface RebuildSummary {
 
 const ACTIVE = new Set(['open', 'one-vote', 'split']);
 
+interface Item {
+  readonly id: string;
+  readonly sampleId: string;
+  readonly round: number;
+  readonly state: string;
+  readonly outcome: string | null;
+  readonly finalLabel: string | null;
+  readonly appliedRevision: number | null;
+  readonly suspicion: number;
+  readonly reasons: string;
+  readonly fitId: string | null;
+  readonly leaseUserId: string | null;
+  readonly leaseExpiresAt: Date | null;
+  readonly _count: { readonly votes: number };
+}
+
+type ItemRow = Omit<Item, 'round' | 'appliedRevision' | 'leaseExpiresAt' | '_count'> & {
+  round: number | bigint;
+  appliedRevision: number | bigint | null;
+  leaseExpiresAt: Date | string | null;
+  votes: number | bigint;
+};
+
+/**
+ * Every queue item of the project with its vote count, in one raw statement: the rebuild runs inside
+ * the fit's completing transaction (on SQLite it holds the write lock), and mapping thousands of
+ * rows through the ORM cost far more server-thread time than the query.
+ */
+async function queueItemsOf(tx: DbTx, projectId: string): Promise<Item[]> {
+  const rows = await tx.$queryRaw<ItemRow[]>`
+    SELECT q."id", q."sampleId", q."round", q."state", q."outcome", q."finalLabel", q."appliedRevision", q."suspicion", q."reasons",
+      q."fitId", q."leaseUserId", q."leaseExpiresAt", (SELECT COUNT(*) FROM "Vote" v WHERE v."queueItemId" = q."id") AS "votes"
+    FROM "QueueItem" q WHERE q."projectId" = ${projectId}`;
+  return rows.map((r) => ({
+    ...r,
+    round: Number(r.round),
+    appliedRevision: r.appliedRevision === null ? null : Number(r.appliedRevision),
+    leaseExpiresAt: r.leaseExpiresAt === null ? null : new Date(r.leaseExpiresAt),
+    _count: { votes: Number(r.votes) },
+  }));
+}
+
 export async function rebuildQueueTx(tx: DbTx, input: RebuildInput): Promise<RebuildSummary> {
   const { projectId, now } = input;
   const stale = new Set(
@@ -63,25 +105,7 @@ export async function rebuildQueueTx(tx: DbTx, input: RebuildInput): Promise<Reb
       await tx.sample.findMany({ where: { projectId, labelRevision: { gt: input.revisionNumber } }, select: { id: true } })
     ).map((s) => s.id),
   );
-  const items = await tx.queueItem.findMany({
-    where: { projectId },
-    select: {
-      id: true,
-      sampleId: true,
-      round: true,
-      state: true,
-      outcome: true,
-      finalLabel: true,
-      appliedRevision: true,
-      suspicion: true,
-      reasons: true,
-      fitId: true,
-      leaseUserId: true,
-      leaseExpiresAt: true,
-      _count: { select: { votes: true } },
-    },
-  });
-  type Item = (typeof items)[number];
+  const items = await queueItemsOf(tx, projectId);
   const latest = new Map<string, Item>();
   for (const it of items) {
     const cur = latest.get(it.sampleId);
