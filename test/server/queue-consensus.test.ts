@@ -85,12 +85,14 @@ describe('consensus', () => {
     const rev = await refusedWith(decideSplit({ db }, f.scope, b, { projectId: f.projectId, itemId: items[2], decision: 'keep' }));
     expect(rev).toEqual({ status: 403, message: 'Only a lead can decide a split item.' });
 
-    const decided = await decideSplit({ db }, f.scope, f.lead, { projectId: f.projectId, itemId: items[2], decision: 'relabel', label: others[1] });
+    const note = 'Both readings are plausible; the order number settles it.';
+    const decided = await decideSplit({ db }, f.scope, f.lead, { projectId: f.projectId, itemId: items[2], decision: 'relabel', label: others[1], note });
     expect(decided.outcome).toBe('relabelled');
     const item = await db.queueItem.findUniqueOrThrow({ where: { id: items[2] } });
-    expect([item.state, item.outcome, item.finalLabel, item.tiebreakById]).toEqual(['closed', 'relabelled', others[1], f.lead.userId]);
+    expect([item.state, item.outcome, item.finalLabel, item.tiebreakById, item.tiebreakNote]).toEqual(['closed', 'relabelled', others[1], f.lead.userId, note]);
     const second = await decideSplit({ db }, f.scope, f.lead2, { projectId: f.projectId, itemId: items[3], decision: 'keep' });
     expect(second.outcome).toBe('kept');
+    expect((await db.queueItem.findUniqueOrThrow({ where: { id: items[3] } })).tiebreakNote).toBeNull();
   });
 
   it('refuses voting twice, voting on a closed or split item, observers, and relabels to the current or an unknown class', async () => {

@@ -286,6 +286,7 @@ export async function decideSplit(
         outcome: relabel ? 'relabelled' : 'kept',
         finalLabel: relabel ? input.label : item.sample.currentLabel,
         tiebreakById: actor.userId,
+        tiebreakNote: input.note || null,
         closedAt: now,
         leaseUserId: null,
         leaseExpiresAt: null,
