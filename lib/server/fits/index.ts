@@ -49,7 +49,7 @@ export function ensureFitWorker(client?: Db, config?: DatabaseConfig): Promise<F
     engine: persistentWorkerEngine(),
     ...(writerConfig ? { standingsWriter: workerStandingsWriter(writerConfig) } : {}),
     bootstrap: true,
-    log: (line) => console.log(`[refit] ${line}`),
+    log: (line) => refitLog.info(line),
   });
   setFitJobQueue(queue);
   holder.__borderlineFitWorkerStart = queue.start().then(
