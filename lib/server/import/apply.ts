@@ -13,7 +13,7 @@ import { randomBytes } from 'node:crypto';
 import type { ImportFormat, ImportMode } from '../../domain-data';
 import { conflict, notFound } from '../authz/errors';
 import type { TeamScope } from '../authz/scope';
-import { providerOf } from '../queue/tx';
+import { providerOf, serialWrite } from '../queue/tx';
 import type { Db, DbTx } from '../db';
 import { recordAudit } from '../auth/audit';
 import { requestRefit } from '../refit-request';
@@ -167,8 +167,12 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
   const batchSize = options.batchSize ?? 1000;
   const finish = options.finish ?? createHistoryRow;
   try {
-    return await client.$transaction(
+    // SQLite has one writer: the import takes its turn with the process's other writes (serialWrite)
+    // and takes the write lock with its first statement, so it waits for a background writer
+    // instead of failing when it upgrades a read transaction to a write.
+    return await serialWrite(client, () => client.$transaction(
       async (tx) => {
+        if (dialect === 'sqlite') await tx.$executeRaw`UPDATE "Project" SET "currentRevision" = "currentRevision" WHERE "id" = ${input.projectId}`;
         const project = await tx.project.findFirst({
           where: { id: input.projectId, teamId: scope.teamId },
           select: { id: true, currentRevision: true, featureCount: true, maxClasses: true },
@@ -318,7 +322,7 @@ export async function applyImport(client: Db, scope: TeamScope, input: ApplyInpu
         return { batchId, ...result };
       },
       { timeout: options.timeoutMs ?? 30 * 60_000, maxWait: 30_000 },
-    );
+    ));
   } catch (error) {
     if (!(error instanceof NothingChanged)) throw error;
     const result = { revisionNumber: null, fitId: null, added: 0, relabelled: 0, updated: 0, unchanged: error.unchanged, classesAdded: 0 };

@@ -16,6 +16,7 @@
  * A refused import is recorded in the import history as a failed batch (with its first
  * problem); the project's samples, classes, revisions and fits are untouched.
  */
+import { databaseOutage } from '../db-outage';
 import { sniffBinary } from '../../data-columns';
 import { DATA_LIMITS, type ImportFormat, type ImportMode } from '../../domain-data';
 import { recordAudit } from '../auth/audit';
@@ -345,7 +346,7 @@ function conflictMessage(error: unknown): string | null {
   if (code === 'P2002' || code === 'P2034') return CONCURRENT_CHANGE;
   // P1008: the database did not let the transaction write in time (SQLite: another writer holds
   // the lock beyond the busy timeout).
-  if (code === 'P1008') return DATABASE_BUSY;
+  if (code === 'P1008' || databaseOutage(error) === 'busy') return DATABASE_BUSY;
   return null;
 }
 
