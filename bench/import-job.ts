@@ -10,56 +10,25 @@
  * postgresql://postgres@127.0.0.1:5432/postgres). Compare with `npx tsx bench/import.ts --only
  * postgres` (the same file imported in-process).
  */
-import { createReadStream, createWriteStream, mkdtempSync, rmSync, statSync } from 'node:fs';
+import { createReadStream, mkdtempSync, rmSync } from 'node:fs';
 import { cpus, loadavg, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import pg from 'pg';
-import { unsafeUniformIntDistribution, xoroshiro128plus } from 'pure-rand';
 import { mintTeamScope } from '../lib/server/authz/scope';
 import { createDb } from '../lib/server/db';
 import { parseDatabaseUrl } from '../lib/server/env';
 import { startImportJobWorker } from '../lib/server/import/job';
-import { formatFloat32 } from '../lib/server/import/numbers';
 import { queueImportJob, stageImport, waitForImport } from '../lib/server/import/staged';
 import { startJobSystem } from '../lib/server/jobs/boss';
 import { applyMigrations } from '../lib/server/migrate/runner';
+import { generateCsv } from './import-data';
 
 const ROOT = fileURLToPath(new URL('..', import.meta.url));
-const CLASSES = ['alpha', 'beta', 'gamma', 'delta'];
 
 function arg(name: string): string | undefined {
   const i = process.argv.indexOf(`--${name}`);
   return i >= 0 ? process.argv[i + 1] : undefined;
-}
-
-/** The CSV of bench/import.ts (same generator and seed; copied: that script runs on import). */
-async function generateCsv(path: string, rows: number, cols: number, seed = 20240611): Promise<number> {
-  const rng = xoroshiro128plus(seed);
-  const out = createWriteStream(path);
-  const header = ['id', 'label'];
-  for (let j = 0; j < cols; j++) header.push(`f${j}`);
-  let buf = `${header.join(',')}\n`;
-  const cells = new Array<string>(cols + 2);
-  for (let i = 0; i < rows; i++) {
-    cells[0] = `s${String(i).padStart(6, '0')}`;
-    const k = unsafeUniformIntDistribution(0, CLASSES.length - 1, rng);
-    cells[1] = CLASSES[k];
-    for (let j = 0; j < cols; j++) {
-      const u = unsafeUniformIntDistribution(0, (1 << 24) - 1, rng) / (1 << 23) - 1;
-      cells[j + 2] = formatFloat32(Math.fround(u + (j % CLASSES.length === k ? 0.5 : 0)));
-    }
-    buf += `${cells.join(',')}\n`;
-    if (buf.length > 1 << 20) {
-      if (!out.write(buf)) await new Promise<void>((r) => out.once('drain', () => r()));
-      buf = '';
-    }
-  }
-  await new Promise<void>((resolve, reject) => {
-    out.end(buf, () => resolve());
-    out.on('error', reject);
-  });
-  return statSync(path).size;
 }
 
 const gb = (n: number) => `${(n / 1024 ** 3).toFixed(2)} GB`;

@@ -14,57 +14,25 @@
  * postgresql://postgres@127.0.0.1:5432/postgres); a throwaway database is created and dropped.
  */
 import { spawnSync } from 'node:child_process';
-import { createReadStream, createWriteStream, mkdtempSync, readFileSync, rmSync, statSync } from 'node:fs';
+import { createReadStream, mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { cpus, loadavg, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import pg from 'pg';
-import { unsafeUniformIntDistribution, xoroshiro128plus } from 'pure-rand';
 import { mintTeamScope } from '../lib/server/authz/scope';
 import { createDb } from '../lib/server/db';
 import { parseDatabaseUrl } from '../lib/server/env';
 import { importSamples } from '../lib/server/import';
-import { formatFloat32 } from '../lib/server/import/numbers';
 import { applyMigrations } from '../lib/server/migrate/runner';
+import { generateCsv } from './import-data';
 
 const ROOT = fileURLToPath(new URL('..', import.meta.url));
 const TARGET_SECONDS = 60;
 const TARGET_PEAK_BYTES = 1.5 * 1024 ** 3;
-const CLASSES = ['alpha', 'beta', 'gamma', 'delta'];
 
 function arg(name: string): string | undefined {
   const i = process.argv.indexOf(`--${name}`);
   return i >= 0 ? process.argv[i + 1] : undefined;
-}
-
-/** Writes the benchmark CSV; returns its size in bytes. */
-export async function generateCsv(path: string, rows: number, cols: number, seed = 20240611): Promise<number> {
-  const rng = xoroshiro128plus(seed);
-  const out = createWriteStream(path);
-  const header = ['id', 'label'];
-  for (let j = 0; j < cols; j++) header.push(`f${j}`);
-  let buf = `${header.join(',')}\n`;
-  const cells = new Array<string>(cols + 2);
-  for (let i = 0; i < rows; i++) {
-    cells[0] = `s${String(i).padStart(6, '0')}`;
-    const k = unsafeUniformIntDistribution(0, CLASSES.length - 1, rng);
-    cells[1] = CLASSES[k];
-    for (let j = 0; j < cols; j++) {
-      // Uniform in [-1, 1) with 2^24 steps, shifted by the class so the classes differ.
-      const u = unsafeUniformIntDistribution(0, (1 << 24) - 1, rng) / (1 << 23) - 1;
-      cells[j + 2] = formatFloat32(Math.fround(u + (j % CLASSES.length === k ? 0.5 : 0)));
-    }
-    buf += `${cells.join(',')}\n`;
-    if (buf.length > 1 << 20) {
-      if (!out.write(buf)) await new Promise<void>((r) => out.once('drain', () => r()));
-      buf = '';
-    }
-  }
-  await new Promise<void>((resolve, reject) => {
-    out.end(buf, () => resolve());
-    out.on('error', reject);
-  });
-  return statSync(path).size;
 }
 
 function vmHwmBytes(): number | null {
