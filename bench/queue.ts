@@ -53,8 +53,8 @@ import { createServer, type IncomingMessage, type ServerResponse } from 'node:ht
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import pg from 'pg';
 import { unsafeUniformIntDistribution, xoroshiro128plus, type RandomGenerator } from 'pure-rand';
+import { ROOT, scratchPgDatabase, startWorker, uniform } from './support';
 
 const ROWS = Number(process.env.BENCH_ROWS ?? 100_000);
 const COLS = Number(process.env.BENCH_COLS ?? 256);
@@ -64,7 +64,6 @@ const REVIEWERS = Number(process.env.BENCH_REVIEWERS ?? 20);
 const SECONDS = Number(process.env.BENCH_SECONDS ?? 20);
 const VOTES_PER_REVIEWER = Number(process.env.BENCH_VOTES ?? 60);
 const DB_KIND = process.env.BENCH_DB === 'postgres' ? 'postgres' : 'sqlite';
-const PG_ADMIN = process.env.BORDERLINE_TEST_PG_URL || 'postgresql://postgres@127.0.0.1:5432/test';
 const SEED = 20251201;
 /** Where refits and imports run: as the product does by default (in-process on SQLite, job system on PostgreSQL). */
 const JOBS = process.env.BENCH_JOBS === 'in-process' || DB_KIND === 'sqlite' ? 'in-process' : 'job-system';
@@ -79,7 +78,6 @@ const IMPORT_EVERY_MS = Number(process.env.BENCH_IMPORT_EVERY_MS ?? 4000);
  * the seed and the cold initial full pass. The relabel phase then starts with a cold fit worker.
  */
 const CACHE = process.env.BENCH_CACHE && DB_KIND === 'sqlite' ? join(process.env.BENCH_CACHE, `queue-${ROWS}x${COLS}`) : null;
-const ROOT = fileURLToPath(new URL('..', import.meta.url));
 
 // ───────────────────────── helpers ─────────────────────────
 
@@ -95,10 +93,6 @@ function summary(values: number[]): { n: number; p50: number; p95: number; p99: 
 }
 
 const ms = (v: number) => (Number.isFinite(v) ? `${v.toFixed(0)} ms` : 'n/a');
-
-function uniform(rng: RandomGenerator): number {
-  return unsafeUniformIntDistribution(0, 2 ** 30 - 1, rng) / 2 ** 30;
-}
 
 function gaussian(rng: RandomGenerator): number {
   const u = Math.max(uniform(rng), 1e-12);
@@ -219,21 +213,7 @@ async function createDatabase(): Promise<Target> {
     const dir = mkdtempSync(join(tmpdir(), 'borderline-bench-queue-'));
     return { url: `file:${join(dir, 'bench.db')}`, drop: async () => rmSync(dir, { recursive: true, force: true }) };
   }
-  const name = `borderline_bench_queue_${process.pid}`;
-  const admin = async (sql: string) => {
-    const c = new pg.Client({ connectionString: PG_ADMIN });
-    await c.connect();
-    try {
-      await c.query(sql);
-    } finally {
-      await c.end();
-    }
-  };
-  await admin(`DROP DATABASE IF EXISTS "${name}" WITH (FORCE)`);
-  await admin(`CREATE DATABASE "${name}"`);
-  const u = new URL(PG_ADMIN);
-  u.pathname = `/${name}`;
-  return { url: u.toString(), drop: () => admin(`DROP DATABASE IF EXISTS "${name}" WITH (FORCE)`) };
+  return scratchPgDatabase(`borderline_bench_queue_${process.pid}`);
 }
 
 interface CachedSeed {
@@ -249,26 +229,6 @@ function classCentres(rng: RandomGenerator): Float64Array[] {
     const c = Float64Array.from({ length: COLS }, () => gaussian(rng));
     const norm = Math.hypot(...c);
     return c.map((v) => (0.6 * v) / norm);
-  });
-}
-
-/** Starts one `npm run worker` process (scripts/worker.ts) and resolves once it takes jobs. */
-function startWorker(url: string): Promise<ChildProcess> {
-  const child = spawn(process.execPath, ['--import', 'tsx', join(ROOT, 'scripts', 'worker.ts')], {
-    cwd: ROOT,
-    env: { ...process.env, DATABASE_URL: url, BORDERLINE_JOBS: 'job-system' },
-    stdio: ['ignore', 'pipe', 'inherit'],
-  });
-  return new Promise((resolve, reject) => {
-    let out = '';
-    child.stdout?.on('data', (b: Buffer) => {
-      const text = b.toString();
-      out += text;
-      if (process.env.BENCH_VERBOSE === '1') for (const line of text.split('\n')) if (line.includes('"msg":"fit ')) console.log(`    [worker] ${line.slice(0, 300)}`);
-      if (out.includes('"msg":"worker started"')) resolve(child);
-      if (out.length > 100_000) out = out.slice(-1000);
-    });
-    child.once('exit', (code) => reject(new Error(`a worker exited (${code})`)));
   });
 }
 
@@ -406,7 +366,10 @@ async function main(): Promise<void> {
       setFitJobQueue(jq);
       jobQueue = jq;
       stopSender = () => sender.stop({ graceful: false, wait: true });
-      for (let w = 0; w < WORKERS; w++) workers.push(await startWorker(target.url));
+      const onLog = (_entry: { msg?: string }, line: string) => {
+        if (process.env.BENCH_VERBOSE === '1' && line.includes('"msg":"fit ')) console.log(`    [worker] ${line.slice(0, 300)}`);
+      };
+      for (let w = 0; w < WORKERS; w++) workers.push(await startWorker(target.url, { onLog }));
       spawnedWorkers.push(...workers);
       console.log(`  job system: ${WORKERS} worker process(es) started`);
     }

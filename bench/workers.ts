@@ -12,68 +12,22 @@
  * excluded: the workers are started and ready before the jobs are sent). Between rounds the fits
  * are deleted. Output: a table and bench/out/workers.json. Deterministic data (pure-rand).
  */
-import { spawn, type ChildProcess } from 'node:child_process';
+import type { ChildProcess } from 'node:child_process';
 import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { cpus, tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { fileURLToPath } from 'node:url';
-import pg from 'pg';
-import { unsafeUniformIntDistribution, xoroshiro128plus, type RandomGenerator } from 'pure-rand';
+import { xoroshiro128plus } from 'pure-rand';
+import { ROOT, scratchPgDatabase, startWorker, uniform } from './support';
 
 const PROJECTS = Number(process.env.BENCH_PROJECTS ?? 6);
 const ROWS = Number(process.env.BENCH_ROWS ?? 2000);
 const COLS = Number(process.env.BENCH_COLS ?? 32);
 const WORKER_COUNTS = (process.env.BENCH_WORKERS ?? '1,2').split(',').map(Number);
-const PG_ADMIN = process.env.BORDERLINE_TEST_PG_URL || 'postgresql://postgres@127.0.0.1:5432/test';
-const ROOT = fileURLToPath(new URL('..', import.meta.url));
 const CLASSES = ['refund', 'shipping', 'account'];
 
-function uniform(rng: RandomGenerator): number {
-  return unsafeUniformIntDistribution(0, 2 ** 30 - 1, rng) / 2 ** 30;
-}
-
-async function admin(sql: string): Promise<void> {
-  const c = new pg.Client({ connectionString: PG_ADMIN });
-  await c.connect();
-  try {
-    await c.query(sql);
-  } finally {
-    await c.end();
-  }
-}
-
-function startWorker(url: string, dataDir: string): Promise<ChildProcess> {
-  const child = spawn(process.execPath, ['--import', 'tsx', join(ROOT, 'scripts', 'worker.ts')], {
-    cwd: ROOT,
-    detached: true,
-    stdio: ['ignore', 'pipe', 'inherit'],
-    env: { ...process.env, DATABASE_URL: url, BORDERLINE_DATA_DIR: dataDir, BORDERLINE_JOBS: 'job-system', NODE_ENV: 'production', NEXTAUTH_SECRET: 'bench-only-secret-0123456789-abcdefghijklmnop' },
-  });
-  return new Promise((resolve, reject) => {
-    let out = '';
-    child.stdout?.on('data', (b: Buffer) => {
-      const text = b.toString();
-      out += text;
-      if (process.env.BENCH_VERBOSE) {
-        for (const line of text.split('\n')) {
-          if (!line.startsWith('{')) continue;
-          const entry = JSON.parse(line) as { msg?: string };
-          if (entry.msg?.startsWith('fit ')) process.stdout.write(`  ${entry.msg}\n`);
-        }
-      }
-      if (out.includes('"msg":"worker started"')) resolve(child);
-    });
-    child.once('exit', (code) => reject(new Error(`worker exited with ${code}: ${out}`)));
-  });
-}
-
 async function main(): Promise<void> {
-  const name = `borderline_bench_workers_${process.pid}`;
-  await admin(`DROP DATABASE IF EXISTS "${name}" WITH (FORCE)`);
-  await admin(`CREATE DATABASE "${name}"`);
-  const u = new URL(PG_ADMIN);
-  u.pathname = `/${name}`;
-  const url = u.toString();
+  const scratch = await scratchPgDatabase(`borderline_bench_workers_${process.pid}`);
+  const url = scratch.url;
   const dataDir = mkdtempSync(join(tmpdir(), 'borderline-bench-workers-'));
   const results: { workers: number; seconds: number; perFit: number }[] = [];
   try {
@@ -112,7 +66,17 @@ async function main(): Promise<void> {
     for (const count of WORKER_COUNTS) {
       await db.queueItem.deleteMany({});
       await db.fit.deleteMany({});
-      const workers = await Promise.all(Array.from({ length: count }, () => startWorker(url, dataDir)));
+      const workers = await Promise.all(
+        Array.from({ length: count }, () =>
+          startWorker(url, {
+            detached: true,
+            env: { BORDERLINE_DATA_DIR: dataDir, NODE_ENV: 'production', NEXTAUTH_SECRET: 'bench-only-secret-0123456789-abcdefghijklmnop' },
+            onLog: (entry) => {
+              if (process.env.BENCH_VERBOSE && entry.msg?.startsWith('fit ')) process.stdout.write(`  ${entry.msg}\n`);
+            },
+          }),
+        ),
+      );
       try {
         const started = performance.now();
         for (const id of projectIds) {
@@ -142,7 +106,7 @@ async function main(): Promise<void> {
     mkdirSync(join(ROOT, 'bench', 'out'), { recursive: true });
     writeFileSync(join(ROOT, 'bench', 'out', 'workers.json'), JSON.stringify({ projects: PROJECTS, rows: ROWS, cols: COLS, cores: cpus().length, results }, null, 2));
   } finally {
-    await admin(`DROP DATABASE IF EXISTS "${name}" WITH (FORCE)`);
+    await scratch.drop();
     rmSync(dataDir, { recursive: true, force: true });
   }
 }
