@@ -1,5 +1,6 @@
-// The refit engine thread runs at a lower OS priority than the threads serving requests
-// (lib/server/fits/fit-worker.ts, ENGINE_NICE). On Linux each thread is a task with its own nice
+// The refit engine thread and the neighbour prefetch thread run at a lower OS priority than the
+// threads serving requests (lib/server/fits/fit-worker.ts ENGINE_NICE, lib/server/queue/
+// neighbour-service.ts PREFETCH_NICE); the thread answering a waiting reviewer does not. On Linux each thread is a task with its own nice
 // value, readable in /proc/self/task/<tid>/stat (field 19, proc(5) — common practice on Linux).
 import { existsSync, readdirSync, readFileSync } from 'node:fs';
 import { getPriority } from 'node:os';
@@ -7,6 +8,8 @@ import { describe, expect, it } from 'vitest';
 import { DEFAULT_PROJECT_SETTINGS } from '@/lib/domain-queue';
 import { persistentWorkerEngine } from '@/lib/server/fits/engine';
 import { engineSettings } from '@/lib/server/fits/run-fit';
+import type { FeatureMatrix } from '@/lib/server/fits/data';
+import { neighboursOfRow, PREFETCH_NICE, prefetchNeighbours } from '@/lib/server/queue/neighbour-service';
 
 function taskNiceValues(): number[] {
   return readdirSync('/proc/self/task').map((tid) => {
@@ -25,6 +28,38 @@ describe.skipIf(!existsSync('/proc/self/task'))('the refit engine thread', () =>
     const fit = await engine.fit(data, { ...engineSettings(DEFAULT_PROJECT_SETTINGS, 4, 2, null), pivotCap: 0 }, () => {});
     expect(fit.classes).toEqual(['x', 'y']);
     expect(taskNiceValues().filter((n) => n === 10).length).toBe(before + 1);
+    expect(getPriority(0)).toBe(0);
+  });
+});
+
+describe.skipIf(!existsSync('/proc/self/task'))('the neighbour search threads', () => {
+  it('search ahead at nice 15 and answer a waiting reviewer at the normal priority', async () => {
+    expect(PREFETCH_NICE).toBe(15);
+    const before = taskNiceValues();
+    const points = [0, 0, 1, 0, 0, 2, 5, 5, 6, 5];
+    const X = new Float32Array(new SharedArrayBuffer(points.length * 4));
+    X.set(points);
+    const ids = ['a', 'b', 'c', 'd', 'e'];
+    const m: FeatureMatrix = {
+      projectId: 'priority-test',
+      sampleIds: ids,
+      externalIds: ids,
+      addedRevision: new Int32Array(5),
+      X,
+      rows: 5,
+      cols: 2,
+      rowOf: new Map(ids.map((id, i) => [id, i])),
+      fingerprint: 'priority-test:1',
+    };
+    prefetchNeighbours(m, 'none', [3]);
+    // Row 4 (6,5): nearest (5,5) at 1, then (0,2) at √45, (1,0) at √50, (0,0) at √61.
+    const found = await neighboursOfRow(m, 'none', 4);
+    expect(found.map((x) => x.row)).toEqual([3, 2, 1, 0]);
+    // Row 3 was searched by the prefetch thread; asking for it now waits for that answer or searches again.
+    expect((await neighboursOfRow(m, 'none', 3))[0]).toEqual({ row: 4, distance: 1 });
+    const after = taskNiceValues();
+    expect(after.filter((n) => n === 15).length).toBe(before.filter((n) => n === 15).length + 1);
+    expect(after.length).toBeGreaterThanOrEqual(before.length + 2);
     expect(getPriority(0)).toBe(0);
   });
 });

@@ -1,9 +1,10 @@
 /**
- * Nearest neighbours without blocking the server thread: searches run in one long-lived worker
- * thread that shares the feature matrix (SharedArrayBuffer), results are cached per (matrix
- * fingerprint, scaling, sample) — neighbours depend on features only, not on labels, so a cached
- * answer stays valid across refits — and the items a reviewer is likely to get next are searched
- * ahead of time (`prefetch`). If the worker cannot start, searches run on the calling thread.
+ * Nearest neighbours without blocking the server thread: searches run in two long-lived worker
+ * threads that share the feature matrix (SharedArrayBuffer) — one for a reviewer who is waiting
+ * (normal priority), one for searches ahead of time (`prefetch`, nice PREFETCH_NICE, so that it
+ * takes only CPU time nobody serving a request wants). Results are cached per (matrix fingerprint,
+ * scaling, sample) — neighbours depend on features only, not on labels, so a cached answer stays
+ * valid across refits. If a worker cannot start, its searches run on the calling thread.
  */
 import { join } from 'node:path';
 import type { Worker } from 'node:worker_threads';
@@ -13,71 +14,95 @@ import { nearestNeighbours, type Neighbour, type Scaling } from './neighbours';
 
 const K = 5;
 const CACHE_LIMIT = 50_000;
+/**
+ * Priority of the prefetch thread: below the refit engine's nice 10 (fit-worker.ts) too, since a
+ * refit's result is awaited by reviewers and a prefetch only might be.
+ */
+export const PREFETCH_NICE = 15;
 
 type Pending = { resolve: (r: Neighbour[][]) => void; reject: (e: Error) => void };
+type Kind = 'urgent' | 'prefetch';
 
-interface State {
+interface Lane {
   worker: Worker | null;
   failed: boolean;
+  /** projectId → fingerprint sent to this worker */
+  sent: Map<string, string>;
+}
+
+interface State {
+  lanes: Record<Kind, Lane>;
   nextId: number;
   pending: Map<number, Pending>;
-  /** projectId → fingerprint sent to the worker */
-  sent: Map<string, string>;
   cache: Map<string, Neighbour[]>;
   /** searches under way; `urgent` ones serve a reviewer who is waiting */
   inflight: Map<string, { promise: Promise<Neighbour[]>; urgent: boolean }>;
 }
 
+const lane = (): Lane => ({ worker: null, failed: false, sent: new Map() });
 const holder = globalThis as typeof globalThis & { __borderlineNeighbours?: State };
 function state(): State {
-  holder.__borderlineNeighbours ??= { worker: null, failed: false, nextId: 1, pending: new Map(), sent: new Map(), cache: new Map(), inflight: new Map() };
+  holder.__borderlineNeighbours ??= { lanes: { urgent: lane(), prefetch: lane() }, nextId: 1, pending: new Map(), cache: new Map(), inflight: new Map() };
   return holder.__borderlineNeighbours;
 }
 
-function worker(): Worker | null {
+function worker(kind: Kind): Worker | null {
   const st = state();
-  if (st.worker || st.failed) return st.worker;
+  const l = st.lanes[kind];
+  if (l.worker || l.failed) return l.worker;
   try {
-    const w = startTsWorker(join(process.cwd(), 'lib', 'server', 'queue', 'neighbour-worker.ts'), {});
+    const w = startTsWorker(join(process.cwd(), 'lib', 'server', 'queue', 'neighbour-worker.ts'), { nice: kind === 'prefetch' ? PREFETCH_NICE : 0 });
     w.unref();
+    const mine = new Set<number>();
     w.on('message', (m: { type: 'result'; id: number; results: Neighbour[][] } | { type: 'error'; id: number; message: string }) => {
       const p = st.pending.get(m.id);
+      mine.delete(m.id);
       if (!p) return;
       st.pending.delete(m.id);
       if (m.type === 'result') p.resolve(m.results);
       else p.reject(new Error(m.message));
     });
     const fail = (e: unknown) => {
-      st.worker = null;
-      st.failed = true;
-      st.sent.clear();
-      for (const p of st.pending.values()) p.reject(e instanceof Error ? e : new Error(String(e)));
-      st.pending.clear();
+      l.worker = null;
+      l.failed = true;
+      l.sent.clear();
+      for (const id of mine) {
+        st.pending.get(id)?.reject(e instanceof Error ? e : new Error(String(e)));
+        st.pending.delete(id);
+      }
+      mine.clear();
     };
     w.on('error', fail);
     w.on('exit', (code) => fail(new Error(`neighbour worker exited (${code})`)));
-    st.worker = w;
+    l.worker = w;
+    workerQueries.set(w, mine);
   } catch {
-    st.failed = true;
+    l.failed = true;
   }
-  return st.worker;
+  return l.worker;
 }
+
+/** Query ids sent to each worker and not answered yet (failed with it if it dies). */
+const workerQueries = new WeakMap<Worker, Set<number>>();
 
 function keyOf(m: FeatureMatrix, scaling: Scaling, row: number): string {
   return `${m.projectId}|${m.fingerprint}|${scaling}|${row}`;
 }
 
 async function search(m: FeatureMatrix, scaling: Scaling, rows: number[], urgent: boolean): Promise<Neighbour[][]> {
-  const w = worker();
+  const kind: Kind = urgent ? 'urgent' : 'prefetch';
+  const w = worker(kind);
   if (!w) return rows.map((r) => nearestNeighbours(m, scaling, r, K));
   const st = state();
-  if (st.sent.get(m.projectId) !== m.fingerprint) {
+  const l = st.lanes[kind];
+  if (l.sent.get(m.projectId) !== m.fingerprint) {
     w.postMessage({ type: 'matrix', view: { projectId: m.projectId, fingerprint: m.fingerprint, X: m.X, rows: m.rows, cols: m.cols } });
-    st.sent.set(m.projectId, m.fingerprint);
+    l.sent.set(m.projectId, m.fingerprint);
   }
   const id = st.nextId++;
   return new Promise<Neighbour[][]>((resolve, reject) => {
     st.pending.set(id, { resolve, reject });
+    workerQueries.get(w)?.add(id);
     w.postMessage({ type: 'query', id, projectId: m.projectId, fingerprint: m.fingerprint, scaling, rows, k: K, urgent });
   }).catch(() => rows.map((r) => nearestNeighbours(m, scaling, r, K)));
 }
@@ -94,7 +119,7 @@ export async function neighboursOfRow(m: FeatureMatrix, scaling: Scaling, row: n
   const key = keyOf(m, scaling, row);
   const hit = st.cache.get(key);
   if (hit) return hit;
-  // A prefetch of the same row may sit behind other prefetches in the worker: search again, urgently.
+  // A prefetch of the same row may sit behind other prefetches in the slow lane: search again, urgently.
   const running = st.inflight.get(key);
   if (running?.urgent) return running.promise;
   const p = search(m, scaling, [row], true).then((r) => {
@@ -111,8 +136,7 @@ export function prefetchNeighbours(m: FeatureMatrix, scaling: Scaling, rows: num
   const st = state();
   const todo = rows.filter((r) => !st.cache.has(keyOf(m, scaling, r)) && !st.inflight.has(keyOf(m, scaling, r)));
   if (todo.length === 0) return;
-  // One query per row: the worker searches a couple of them per pass, so a reviewer's urgent search
-  // waits for at most that pass (neighbour-worker.ts).
+  // One query per row: the prefetch worker searches a few of them per pass (neighbour-worker.ts).
   for (const r of todo) {
     const key = keyOf(m, scaling, r);
     const one = search(m, scaling, [r], false).then((res) => {

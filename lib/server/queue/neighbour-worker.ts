@@ -1,6 +1,8 @@
 /**
- * Worker-thread entry for nearest-neighbour searches (started by neighbour-service.ts; not imported
- * by anything else). The feature matrix arrives once per fingerprint as a SharedArrayBuffer-backed
+ * Worker-thread entry for nearest-neighbour searches (started by neighbour-service.ts, twice: one
+ * thread for reviewers who wait, one at a lower priority for searches ahead of time; not imported
+ * by anything else). workerData: { nice } — the OS priority this thread asks for (Linux: per
+ * thread; refused → normal priority). The feature matrix arrives once per fingerprint as a SharedArrayBuffer-backed
  * Float32Array, so it is shared with the server thread, not copied.
  *
  * Protocol:
@@ -12,7 +14,8 @@
  *   → { type: 'result', id, results: Neighbour[][] }   (one list per requested row)
  *   → { type: 'error', id, message }
  */
-import { parentPort } from 'node:worker_threads';
+import { setPriority } from 'node:os';
+import { parentPort, workerData } from 'node:worker_threads';
 import { nearestNeighboursOfRows, type MatrixView, type Neighbour, type Scaling } from './neighbours';
 
 type Query = { type: 'query'; id: number; projectId: string; fingerprint: string; scaling: Scaling; rows: number[]; k: number; urgent?: boolean };
@@ -25,6 +28,15 @@ let scheduled = false;
 const port = parentPort;
 if (!port) throw new Error('lib/server/queue/neighbour-worker.ts must run in a worker thread');
 
+const nice = (workerData as { nice?: unknown } | null)?.nice;
+if (typeof nice === 'number' && nice > 0) {
+  try {
+    setPriority(0, nice);
+  } catch {
+    // Not permitted here: run at the normal priority.
+  }
+}
+
 /**
  * Rows searched in one pass over the matrix (see nearestNeighboursOfRows): every waiting urgent
  * query up to URGENT_ROWS, else up to PREFETCH_ROWS prefetched rows. The search is mostly
@@ -32,7 +44,7 @@ if (!port) throw new Error('lib/server/queue/neighbour-worker.ts must run in a w
  * that a reviewer's search never waits long behind them.
  */
 const URGENT_ROWS = 16;
-const PREFETCH_ROWS = 2;
+const PREFETCH_ROWS = 4;
 
 /** Answers a group of queries on one matrix and scaling with one pass over the matrix. */
 function answer(group: Query[]): void {
