@@ -119,7 +119,16 @@ function kindOf(error: unknown, depth: number): OutageKind | null {
 
 /** The kind of database outage behind `error`, or null when it is something else. */
 export function databaseOutage(error: unknown): OutageKind | null {
+  if (error instanceof DatabaseOutageError) return error.outage;
   return kindOf(error, 0);
+}
+
+/** An outage met in another thread (the import thread), passed on by its kind. */
+export class DatabaseOutageError extends Error {
+  constructor(readonly outage: OutageKind, message: string) {
+    super(message);
+    this.name = 'DatabaseOutageError';
+  }
 }
 
 /** Thrown (or returned) when the database did not answer in time; `databaseOutage` says 'timeout'. */

@@ -7,7 +7,7 @@
  * workerData: { provider: 'sqlite', file, gate } | { provider: 'postgresql', url }
  * SQLite has one write lock per database: before each batch the worker waits while the server
  * thread has writes waiting or running, and flags the statement it runs so that the server thread
- * waits for it without blocking its event loop (`gate`, see lib/server/queue/tx.ts writerGate and
+ * waits for it without blocking its event loop (`gate`, see lib/server/sqlite-gate.ts and
  * `turn` below); reviewers' votes and claims go first.
  * Protocol:
  *   ← { type: 'write', id, fitId, rows: StandingColumns }   → { type: 'done', id, count }
@@ -20,6 +20,7 @@ import { parentPort, workerData } from 'node:worker_threads';
 import Database from 'better-sqlite3';
 import pg from 'pg';
 import { flagNames, supportKindName } from '../../margin/standings';
+import { backgroundTurn, GATE_BACKGROUND_BUSY } from '../sqlite-gate';
 
 export interface StandingColumns {
   readonly sampleIds: readonly string[];
@@ -75,43 +76,14 @@ async function pause(): Promise<void> {
   await sleep(PAUSE_MS);
 }
 
-// Slots of the gate (lib/server/queue/tx.ts writerGate): the server thread's pending writes, and
-// this thread's "inside a statement" flag, which the server thread waits on before it writes.
-const PENDING = 0;
-const BUSY = 1;
-const QUIET_MS = 10;
-
 /**
- * Runs one SQLite statement when the server thread has no write pending (waiting at most 10 s, so
- * the standings are not starved for ever), with the busy flag raised for its duration. The flag is
- * set before the pending count is read again, and the server thread raises its count before it
- * reads the flag, so the two never write at once and the server thread never blocks on the lock.
+ * Runs one SQLite statement as a background writer (lib/server/sqlite-gate.ts): after the server
+ * thread's pending writes, flagged busy while it runs, so the server thread never blocks on the lock.
  */
 async function turn<T>(statement: () => T): Promise<T> {
-  const gate = config.provider === 'sqlite' && config.gate && config.gate.length > BUSY ? config.gate : undefined;
+  const gate = config.provider === 'sqlite' && config.gate && config.gate.length > GATE_BACKGROUND_BUSY ? config.gate : undefined;
   if (!gate) return statement();
-  // Start only after the server thread has had no write pending for QUIET_MS: requests come in
-  // bursts, and a batch started in the gap between two of them would hold up the second.
-  let quietSince = -1;
-  for (let waited = 0; ; waited += 2) {
-    const patient = waited < 10_000;
-    const idle = Atomics.load(gate, PENDING) === 0;
-    if (!idle) quietSince = -1;
-    else if (quietSince < 0) quietSince = waited;
-    if (!patient || (idle && waited - quietSince >= QUIET_MS)) {
-      Atomics.store(gate, BUSY, 1);
-      if (!patient || Atomics.load(gate, PENDING) === 0) break;
-      Atomics.store(gate, BUSY, 0);
-      Atomics.notify(gate, BUSY);
-    }
-    await sleep(2);
-  }
-  try {
-    return statement();
-  } finally {
-    Atomics.store(gate, BUSY, 0);
-    Atomics.notify(gate, BUSY);
-  }
+  return backgroundTurn(gate, statement);
 }
 
 function rowValues(fitId: string, r: StandingColumns, i: number): unknown[] {

@@ -18,12 +18,14 @@ import { appJobSystem } from '../jobs/app';
 import { importSamples, type ImportInput, type ImportOutcome, type ImportProgress } from './index';
 import type { StoredOutcome } from './job';
 import { queueImportJob, stageImport, waitForImport } from './staged';
+import { importInThread } from './thread';
 
 /**
  * Files at least this large go through the job system when it is on (BORDERLINE_JOBS=job-system,
- * PostgreSQL); smaller ones import in the request's process, as on SQLite — a worker round trip
- * would cost more than the import. Images uploaded with an import live on this instance's disk,
- * so such an import also runs here.
+ * PostgreSQL), else through this process's import thread (thread.ts: off the thread that answers
+ * requests); smaller ones import on the request's thread — a round trip would cost more than the
+ * import. Images uploaded with an import live on this instance's disk, so such an import stays
+ * in this process (in its import thread).
  */
 export const JOB_IMPORT_MIN_BYTES = 1024 * 1024;
 
@@ -34,9 +36,9 @@ interface RunOptions {
 }
 
 /**
- * Runs an import from a request body: in this process, or — for a large file with the job system
- * on — staged into the database and applied by a worker, relaying its progress. Either way the
- * outcome (or the error thrown) is the same for the same file.
+ * Runs an import from a request body: a small file on this thread; a large one in this process's
+ * import thread, or — with the job system on — staged into the database and applied by a worker,
+ * relaying its progress. Every way the outcome (or the error thrown) is the same for the same file.
  */
 export async function runRequestImport(
   scope: TeamScope,
@@ -48,9 +50,11 @@ export async function runRequestImport(
   const bytes = requestBytes(req);
   const inProcess = (source: AsyncIterable<Uint8Array>) =>
     importSamples(scope, projectId, { ...input, source }, options.onProgress ? { onProgress: options.onProgress, progressEveryMs: 250 } : {});
-  if (env().jobs !== 'job-system' || input.uploadBatch !== undefined) return inProcess(bytes);
   const head = await readHead(bytes, JOB_IMPORT_MIN_BYTES);
   if (head.ended) return inProcess(head.source);
+  if (env().jobs !== 'job-system' || input.uploadBatch !== undefined) {
+    return importInThread(env().database, scope, projectId, input, head.source, { onProgress: options.onProgress });
+  }
   return importThroughJobSystem(scope, projectId, input, head.source, options);
 }
 

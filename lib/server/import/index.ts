@@ -23,6 +23,7 @@ import { recordAudit } from '../auth/audit';
 import { notFound } from '../authz/errors';
 import type { TeamScope } from '../authz/scope';
 import { db, type Db } from '../db';
+import { serialWrite } from '../queue/tx';
 import { announceRefit } from '../refit-request';
 import { applyImport, type ApplyResult } from './apply';
 import { DETAIL, FatalImportProblem, MAX_PROBLEMS, problemAt, type ImportProblem } from './problems';
@@ -374,7 +375,7 @@ async function recordFailure(
     finishedAt: new Date(),
   };
   try {
-    return await client.$transaction(async (tx) => {
+    return await serialWrite(client, () => client.$transaction(async (tx) => {
       const batchId = await recorder.finish(tx, row, outcome);
       await recordAudit(tx, {
         action: 'import.failed',
@@ -386,7 +387,7 @@ async function recordFailure(
         address: input.address ?? null,
       });
       return batchId;
-    });
+    }));
   } catch (error) {
     if (error instanceof ImportBatchLost) throw error;
     // The project may have been removed meanwhile; the refusal itself still stands.

@@ -13,9 +13,9 @@
  *     item or project run one after the other, and every later statement of the second sees the
  *     first one's committed writes.
  * - SQLite allows one writer at a time per database anyway, so on SQLite every writeTx of this
- *   process also queues on one in-process mutex: several Prisma clients (connections) in one
- *   process then take turns instead of spinning on the busy handler. Other processes are held
- *   off by the write lock and busy_timeout.
+ *   thread also queues on one mutex, and threads with their own connection take turns through the
+ *   writer gate (lib/server/sqlite-gate.ts), so the server thread never blocks in SQLite's busy
+ *   handler. Other processes are held off by the write lock and busy_timeout.
  * - Transient failures (SQLite busy, PostgreSQL serialization failure / deadlock, Prisma's
  *   P2034 / P2028) are retried with jittered back-off; the function must therefore be idempotent
  *   up to its commit (it is: all effects are inside the transaction).
@@ -23,6 +23,7 @@
 import { Prisma } from '../generated/sqlite/client';
 import type { Db, DbTx } from '../db';
 import { record } from './trace';
+import { asPendingWrite, backgroundIdle, backgroundTurn, newWriterGate } from '../sqlite-gate';
 
 export type LockKey = { readonly table: 'QueueItem' | 'Project' | 'Fit'; readonly id: string };
 
@@ -73,54 +74,27 @@ export interface WriteTxOptions {
 
 let sqliteTail: Promise<void> = Promise.resolve();
 
-const gateHolder = globalThis as typeof globalThis & { __borderlineWriterGate?: Int32Array };
-
-/** Slots of `writerGate()`. */
-export const GATE_PENDING = 0;
-export const GATE_BACKGROUND_BUSY = 1;
+const gateHolder = globalThis as typeof globalThis & { __borderlineWriterGate?: Int32Array; __borderlineBackgroundGate?: Int32Array };
 
 /**
- * Two counters shared with background writer threads that have their own SQLite connection (the
- * standings writer), in a SharedArrayBuffer:
- * - [GATE_PENDING] the number of this thread's writes waiting or running. A background writer
- *   checks it before each batch and waits while it is non-zero, so reviewers' requests get the
- *   database's single write lock first.
- * - [GATE_BACKGROUND_BUSY] 1 while a background writer runs a statement. This thread waits for it
- *   to drop to 0 before it starts a write, asynchronously: better-sqlite3 waits for a lock held by
- *   another connection inside the synchronous call (SQLite's busy handler sleeps), which would
- *   freeze the event loop — every request of the process — for as long as the other statement runs.
- * Both sides set their own slot before reading the other's (sequentially consistent atomics), so
- * at most one of them goes ahead.
+ * The server thread's gate (lib/server/sqlite-gate.ts), shared with background writer threads that
+ * have their own SQLite connection (standings writer, import thread): it counts this thread's
+ * pending writes, and this thread waits, asynchronously, while a background thread is inside one.
  */
 export function writerGate(): Int32Array {
   if (!gateHolder.__borderlineWriterGate || gateHolder.__borderlineWriterGate.length < 2) {
-    gateHolder.__borderlineWriterGate = new Int32Array(new SharedArrayBuffer(8));
+    gateHolder.__borderlineWriterGate = newWriterGate();
   }
   return gateHolder.__borderlineWriterGate;
 }
 
-async function gated<T>(fn: () => Promise<T>): Promise<T> {
-  const gate = writerGate();
-  Atomics.add(gate, GATE_PENDING, 1);
-  try {
-    return await fn();
-  } finally {
-    Atomics.sub(gate, GATE_PENDING, 1);
-  }
-}
-
-// Atomics.waitAsync (Node 16+) is newer than the TypeScript library this project compiles against.
-type WaitAsync = (array: Int32Array, index: number, value: number, timeoutMs: number) => { async: boolean; value: Promise<string> | string };
-const waitAsync = (Atomics as unknown as { waitAsync?: WaitAsync }).waitAsync;
-
-/** Resolves once no background writer is inside a statement (see writerGate). */
-async function backgroundIdle(): Promise<void> {
-  const gate = writerGate();
-  while (Atomics.load(gate, GATE_BACKGROUND_BUSY) !== 0) {
-    const w = waitAsync?.(gate, GATE_BACKGROUND_BUSY, 1, 50);
-    if (w?.async) await w.value;
-    else if (!w) await new Promise((r) => setTimeout(r, 1));
-  }
+/**
+ * Called once in a background thread with its own connection (the import thread), with the server
+ * thread's gate: from then on this thread's writeTx and serialWrite take their turn as a background
+ * writer — after the server thread's pending writes, flagged busy while they run.
+ */
+export function writeAsBackgroundThread(serverGate: Int32Array): void {
+  gateHolder.__borderlineBackgroundGate = serverGate;
 }
 
 /**
@@ -129,17 +103,27 @@ async function backgroundIdle(): Promise<void> {
  * transaction is open there; on PostgreSQL it runs as is.
  */
 export function serialWrite<T>(db: Db, fn: () => Promise<T>): Promise<T> {
-  return providerOf(db) === 'sqlite' ? gated(() => sqliteTurn(fn)) : fn();
+  return providerOf(db) === 'sqlite' ? sqliteWrite(fn) : fn();
 }
 
-/** Runs `fn` when every earlier SQLite write transaction of this process has finished. */
-async function sqliteTurn<T>(fn: () => Promise<T>): Promise<T> {
+function sqliteWrite<T>(fn: () => Promise<T>): Promise<T> {
+  const background = gateHolder.__borderlineBackgroundGate;
+  if (background) return sqliteTurn(() => backgroundTurn(background, fn), false);
+  const gate = writerGate();
+  return asPendingWrite(gate, () => sqliteTurn(fn, true));
+}
+
+/**
+ * Runs `fn` when every earlier SQLite write of this thread has finished (and, on the server thread,
+ * when no background writer is inside a write).
+ */
+async function sqliteTurn<T>(fn: () => Promise<T>, serverThread: boolean): Promise<T> {
   const previous = sqliteTail;
   let release: () => void = () => {};
   sqliteTail = new Promise<void>((r) => (release = r));
   const w0 = performance.now();
   await previous;
-  await backgroundIdle();
+  if (serverThread) await backgroundIdle(writerGate());
   const w1 = performance.now();
   record('sqlite.mutexWait', w1 - w0);
   try {
@@ -167,7 +151,7 @@ export async function writeTx<T>(db: Db, lockKeys: readonly LockKey[], fn: (tx: 
   let lastError: unknown;
   for (let attempt = 0; attempt < attempts; attempt++) {
     try {
-      return await (sqlite ? gated(() => sqliteTurn(once)) : once());
+      return await (sqlite ? sqliteWrite(once) : once());
     } catch (e) {
       if (!isTransient(e)) throw e;
       lastError = e;
