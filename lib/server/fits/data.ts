@@ -54,7 +54,17 @@ async function fingerprintOf(client: Db | DbTx, projectId: string): Promise<{ ke
   return { key: `${count}:${agg._max.createdAt?.getTime() ?? 0}:${dataRevision}`, count };
 }
 
-const PAGE = 5000;
+/**
+ * Rows per read of the features (about 1 MB at 256 columns). Reads through the SQLite driver are
+ * synchronous on the calling thread: between pages the reader yields to the event loop, so that a
+ * reload after an import (or a first refit) never holds up the requests answered meanwhile for
+ * more than one page.
+ */
+const PAGE = 1000;
+/** Rows per read of the labels (three short columns). */
+const LABEL_PAGE = 10_000;
+
+export const yieldToEventLoop = () => new Promise<void>((resolve) => setImmediate(resolve));
 
 /** The cheap part of the fingerprint: the newest import / update revision of the project. */
 async function dataRevisionKey(client: Db | DbTx, projectId: string): Promise<string> {
@@ -111,6 +121,7 @@ export async function featureMatrix(client: Db | DbTx, projectId: string): Promi
     }
     if (page.length < PAGE || sampleIds.length >= capacity) break;
     cursor = page[page.length - 1].id;
+    await yieldToEventLoop();
   }
   const rows = sampleIds.length;
   const matrix: FeatureMatrix = {
@@ -141,15 +152,24 @@ export async function featureMatrix(client: Db | DbTx, projectId: string): Promi
 
 /** Labels of every sample at `revision` (samples added later are absent from the map). */
 export async function labelsAtRevision(client: Db | DbTx, projectId: string, revision: number): Promise<Map<string, string>> {
-  const samples = await client.sample.findMany({
-    where: { projectId, addedRevision: { lte: revision } },
-    select: { id: true, currentLabel: true, labelRevision: true },
-  });
   const labels = new Map<string, string>();
   let later = false;
-  for (const s of samples) {
-    labels.set(s.id, s.currentLabel);
-    if (s.labelRevision > revision) later = true;
+  let cursor: string | undefined;
+  for (;;) {
+    const page = await client.sample.findMany({
+      where: { projectId, addedRevision: { lte: revision } },
+      orderBy: { id: 'asc' },
+      take: LABEL_PAGE,
+      ...(cursor ? { cursor: { id: cursor }, skip: 1 } : {}),
+      select: { id: true, currentLabel: true, labelRevision: true },
+    });
+    for (const s of page) {
+      labels.set(s.id, s.currentLabel);
+      if (s.labelRevision > revision) later = true;
+    }
+    if (page.length < LABEL_PAGE) break;
+    cursor = page[page.length - 1].id;
+    await yieldToEventLoop();
   }
   if (later) {
     const changes = await client.labelChange.findMany({

@@ -34,7 +34,7 @@ import type { Db, DbTx } from '../db';
 import { rebuildQueueTx, type QueueCandidate, type RebuildSummary } from '../queue/build';
 import { systemClock, type Clock } from '../queue/context';
 import { providerOf, serialWrite, writeTx } from '../queue/tx';
-import { fitInput } from './data';
+import { fitInput, yieldToEventLoop } from './data';
 import type { EngineRunner } from './engine';
 import { decodeModel, encodeModel } from './model-codec';
 import { fitsToPrune } from './standings-store';
@@ -316,7 +316,6 @@ function marginFrom(decisions: ArrayLike<number>, classes: readonly string[], la
 }
 
 /** Lets requests waiting on this thread's event loop through during long main-thread loops. */
-const yieldToEventLoop = () => new Promise<void>((resolve) => setImmediate(resolve));
 
 function reasonsOf(flagMask: number, oofMargin: number): string[] {
   const reasons: string[] = flagNames(flagMask);
