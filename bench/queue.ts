@@ -367,12 +367,18 @@ async function main(): Promise<void> {
       setFitJobQueue(jq);
       jobQueue = jq;
       stopSender = () => sender.stop({ graceful: false, wait: true });
-      const onLog = (_entry: { msg?: string }, line: string) => {
+      let warm = 0;
+      const onLog = (entry: { msg?: string }, line: string) => {
+        if (entry.msg === 'worker warm') warm++;
         if (process.env.BENCH_VERBOSE === '1' && line.includes('"msg":"fit ')) console.log(`    [worker] ${line.slice(0, 300)}`);
       };
+      const w0 = performance.now();
       for (let w = 0; w < WORKERS; w++) workers.push(await startWorker(target.url, { onLog }));
       spawnedWorkers.push(...workers);
-      console.log(`  job system: ${WORKERS} worker process(es) started`);
+      // A worker reads the matrices of recently fitted projects when it starts (lib/server/fits/warm.ts);
+      // the relabels are timed once every worker is warm, as in a deployment whose workers keep running.
+      for (let i = 0; i < 1800 && warm < WORKERS; i++) await new Promise((r) => setTimeout(r, 100));
+      console.log(`  job system: ${WORKERS} worker process(es) started, ${warm} warm after ${ms(performance.now() - w0)}`);
     }
     out.jobs = JOBS;
     out.workers = JOBS === 'job-system' ? WORKERS : 0;

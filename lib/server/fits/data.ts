@@ -87,6 +87,19 @@ export async function featureMatrixForReading(client: Db | DbTx, projectId: stri
   return featureMatrix(client, projectId);
 }
 
+const loadingStore = globalThis as typeof globalThis & { __borderlineFeatureLoads?: Map<string, Promise<FeatureMatrix>> };
+const loading = (): Map<string, Promise<FeatureMatrix>> => (loadingStore.__borderlineFeatureLoads ??= new Map());
+
+/** The matrix cached for a project, if any (diagnostics and tests). */
+export function cachedFeatureMatrix(projectId: string): FeatureMatrix | null {
+  return cache().get(projectId)?.matrix ?? null;
+}
+
+/**
+ * The project's feature matrix, from the cache when its fingerprint (sample count, newest sample,
+ * newest import/update revision) still matches, else read afresh. Concurrent calls for the same
+ * fingerprint share one read (a refit arriving while the worker warms up waits for that read).
+ */
 export async function featureMatrix(client: Db | DbTx, projectId: string): Promise<FeatureMatrix> {
   const fp = await fingerprintOf(client, projectId);
   const hit = cache().get(projectId);
@@ -94,6 +107,15 @@ export async function featureMatrix(client: Db | DbTx, projectId: string): Promi
     hit.usedAt = Date.now();
     return hit.matrix;
   }
+  const key = `${projectId}|${fp.key}`;
+  const running = loading().get(key);
+  if (running) return running;
+  const read = readFeatureMatrix(client, projectId, fp).finally(() => loading().delete(key));
+  loading().set(key, read);
+  return read;
+}
+
+async function readFeatureMatrix(client: Db | DbTx, projectId: string, fp: { key: string; count: number }): Promise<FeatureMatrix> {
   const project = await client.project.findUnique({ where: { id: projectId }, select: { featureCount: true } });
   if (!project) throw new Error(`project ${projectId} not found`);
   const cols = project.featureCount;

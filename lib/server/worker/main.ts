@@ -2,7 +2,9 @@
  * The `npm run worker` process (job-system mode, PostgreSQL): applies pending migrations, starts
  * pg-boss in the worker role (it also runs pg-boss's maintenance: expiry, retries, archiving) and
  * registers the job handlers — refits (with pivots and out-of-fold runs, lib/server/fits) and
- * staged imports. Any number of these processes may run against one database, on any machines.
+ * staged imports — then reads the feature matrices of recently fitted projects in the background
+ * (lib/server/fits/warm.ts; `BORDERLINE_WORKER_WARM_HOURS`, default 24, 0 turns it off), so the
+ * first refit after a restart is as quick as the later ones. Any number of these processes may run against one database, on any machines.
  *
  * SIGTERM / SIGINT stop taking jobs, let the running ones finish (up to `BORDERLINE_WORKER_STOP_SECONDS`,
  * default 60 s; an unfinished fit is then picked up by another worker once its lease runs out) and
@@ -17,6 +19,7 @@ import { persistentWorkerEngine } from '../fits/engine';
 import { startFitJobWorker, type FitJobWorker } from '../fits/job-system';
 import { startImportJobWorker } from '../import/job';
 import { workerStandingsWriter } from '../fits/standings-writer';
+import { warmUpFeatureMatrices } from '../fits/warm';
 import { startJobSystem } from '../jobs/boss';
 import { log as rootLog } from '../log';
 import { prepareDatabaseOrExit } from '../startup';
@@ -59,6 +62,10 @@ export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Pro
   });
   await startImportJobWorker({ db: defaultDb(), boss, workerId, lease: { heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs }, log });
   log('worker started', { concurrency: e.BORDERLINE_WORKER_CONCURRENCY, leaseSeconds: e.BORDERLINE_FIT_LEASE_SECONDS });
+  // In the background: jobs are taken from now on; a refit of a project being read shares the read.
+  void warmUpFeatureMatrices(defaultDb(), { hours: Number(process.env.BORDERLINE_WORKER_WARM_HOURS ?? 24), log })
+    .then((w) => log('worker warm', { projects: w.projects.length, rows: w.rows, ms: Math.round(w.ms) }))
+    .catch((error: unknown) => logger.warn('warm-up stopped', { error: error instanceof Error ? error.message : String(error) }));
   return {
     workerId,
     async stop() {
