@@ -273,6 +273,27 @@ async function carriedFor(db: Db, projectId: string, key: string): Promise<Carri
   return carried;
 }
 
+/**
+ * Reads into this process's memory what a refit of the project loads before its engine runs —
+ * features and labels at the current revision (with L2-normalised rows where the project scales
+ * so), the newest warm start and the carried held-out values — so that a worker that just started
+ * refits as quickly as one that has been running (lib/server/fits/warm.ts). Returns the rows read.
+ */
+export async function prepareProjectMemory(db: Db, projectId: string): Promise<number> {
+  const project = await db.project.findUnique({ where: { id: projectId }, select: { currentRevision: true, settings: true } });
+  if (!project) return 0;
+  const s = readProjectSettings(project.settings);
+  const l2 = s.scale === 'l2';
+  const { input } = await fitInput(db, projectId, project.currentRevision, { l2 });
+  const n = input.sampleIds.length;
+  if (n === 0) return 0;
+  const engineScale: FitSettings['scale'] = l2 ? 'none' : s.scale;
+  const carried = await carriedFor(db, projectId, carryKey(engineSettings(s, n, input.cols, null, engineScale)));
+  const chosen = s.autoSelect ? (carried?.chosen ?? null) : null;
+  await warmStartFor(db, projectId, warmKey(engineSettings(s, n, input.cols, chosen, engineScale)));
+  return n;
+}
+
 // ───────────────────────── per-sample records ─────────────────────────
 
 interface SampleRecords {

@@ -1,12 +1,14 @@
 /**
  * Warming a worker process up: the first refit of a project in a process reads every feature of
- * the project (100k × 256 takes seconds), so a worker that just started reads, in the background,
- * the matrices of the projects fitted recently — newest first, within half the feature cache —
- * before a relabel asks for them. A refit arriving meanwhile shares the read under way
- * (`featureMatrix`), it never waits for the whole warm-up.
+ * the project (100k × 256 takes seconds), its labels, the newest model (warm start) and the newest
+ * full pass's held-out values; so a worker that just started reads these, in the background, for
+ * the projects fitted recently — newest first, within half the feature cache — before a relabel
+ * asks for them (`prepareProjectMemory`). A refit arriving meanwhile shares a feature read under way
+ * (`featureMatrix`); it never waits for the whole warm-up.
  */
 import type { Db } from '../db';
-import { FEATURE_CACHE_BYTES, featureMatrix } from './data';
+import { cachedFeatureMatrix, FEATURE_CACHE_BYTES } from './data';
+import { prepareProjectMemory } from './run-fit';
 
 export interface WarmUpOptions {
   /** Projects with a fit finished within this many hours (default 24). */
@@ -43,10 +45,11 @@ export async function warmUpFeatureMatrices(db: Db, options: WarmUpOptions = {})
     if (bytes > budget) continue;
     budget -= bytes;
     const t = performance.now();
-    const m = await featureMatrix(db, f.projectId);
+    await prepareProjectMemory(db, f.projectId);
+    const read = cachedFeatureMatrix(f.projectId)?.rows ?? 0;
     projects.push(f.projectId);
-    rows += m.rows;
-    options.log?.('project warmed', { projectId: f.projectId, rows: m.rows, ms: Math.round(performance.now() - t) });
+    rows += read;
+    options.log?.('project warmed', { projectId: f.projectId, rows: read, ms: Math.round(performance.now() - t) });
   }
   return { projects, rows, ms: performance.now() - started };
 }
