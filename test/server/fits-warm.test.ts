@@ -5,7 +5,8 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Db } from '@/lib/server/db';
 import { encodeFeatures } from '@/lib/server/features';
 import { cachedFeatureMatrix, featureMatrix, invalidateFeatureCache } from '@/lib/server/fits/data';
-import { warmUpFeatureMatrices } from '@/lib/server/fits/warm';
+import { persistentWorkerEngine } from '@/lib/server/fits/engine';
+import { warmUpEngines, warmUpFeatureMatrices } from '@/lib/server/fits/warm';
 import { createTestDatabase, type TestDatabase } from './db-harness';
 
 let t: TestDatabase;
@@ -73,5 +74,15 @@ describe('warming a worker up', () => {
     const [a, b] = await Promise.all([featureMatrix(db, large), featureMatrix(db, large)]);
     expect(a).toBe(b);
     expect(a.rows).toBe(40);
+  });
+});
+
+describe('warming the engine up', () => {
+  it('runs one small fit in each engine thread', async () => {
+    const found = await warmUpEngines([persistentWorkerEngine(), persistentWorkerEngine()]);
+    expect(found).toEqual([
+      ['down', 'up'],
+      ['down', 'up'],
+    ]);
   });
 });

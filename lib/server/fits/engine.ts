@@ -39,7 +39,12 @@ export function fitWorkerPath(root: string = process.cwd()): string {
   return join(root, 'lib', 'server', 'fits', 'fit-worker.ts');
 }
 
-const IDLE_MS = 120_000;
+/**
+ * An engine thread with no job for this long is stopped (its heap returned). Starting one again
+ * and compiling the solvers costs a 100k × 256 quick pass about 3–4 s on top of its 1.5 s, so the
+ * thread is kept through the pauses of a working session.
+ */
+const IDLE_MS = 30 * 60_000;
 
 /**
  * An engine whose jobs run one at a time in one long-lived worker thread (fit-worker.ts): no thread

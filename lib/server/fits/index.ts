@@ -17,6 +17,7 @@ import { writeTx } from '../queue/tx';
 import { enqueueCurrentRevisionTx } from './enqueue';
 import { inlineEngine, persistentWorkerEngine, type EngineRunner } from './engine';
 import { InProcessFitQueue } from './in-process';
+import { warmUpEngines } from './warm';
 import { JobSystemFitQueue } from './job-system';
 import { appJobSystem } from '../jobs/app';
 import { currentFitJobQueue, setFitJobQueue, type FitJobQueue } from './jobs';
@@ -45,15 +46,20 @@ export function ensureFitWorker(client?: Db, config?: DatabaseConfig): Promise<F
   if (client === undefined && env().jobs === 'job-system') return holder.__borderlineFitWorkerStart ?? ensureJobSystemQueue();
   const target = client ?? defaultDb();
   const writerConfig = config ?? (client === undefined ? env().database : undefined);
+  const engine = persistentWorkerEngine();
   const queue = new InProcessFitQueue(target, {
-    engine: persistentWorkerEngine(),
+    engine,
     ...(writerConfig ? { standingsWriter: workerStandingsWriter(writerConfig) } : {}),
     bootstrap: true,
     log: (line) => refitLog.info(line),
   });
   setFitJobQueue(queue);
   holder.__borderlineFitWorkerStart = queue.start().then(
-    () => queue,
+    () => {
+      // The app's own worker: start the engine thread and compile the solver before the first refit.
+      if (client === undefined) void warmUpEngines([engine]).catch((e: unknown) => refitLog.warn('engine warm-up failed', { error: e instanceof Error ? e.message : String(e) }));
+      return queue;
+    },
     (e: unknown) => {
       refitLog.error('the fit worker could not start', { error: e instanceof Error ? e.message : String(e) });
       setFitJobQueue(null);

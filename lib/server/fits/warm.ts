@@ -6,9 +6,11 @@
  * asks for them (`prepareProjectMemory`). A refit arriving meanwhile shares a feature read under way
  * (`featureMatrix`); it never waits for the whole warm-up.
  */
+import { DEFAULT_PROJECT_SETTINGS } from '../../domain-queue';
 import type { Db } from '../db';
+import type { EngineRunner } from './engine';
 import { cachedFeatureMatrix, FEATURE_CACHE_BYTES } from './data';
-import { prepareProjectMemory } from './run-fit';
+import { engineSettings, prepareProjectMemory } from './run-fit';
 
 export interface WarmUpOptions {
   /** Projects with a fit finished within this many hours (default 24). */
@@ -52,4 +54,32 @@ export async function warmUpFeatureMatrices(db: Db, options: WarmUpOptions = {})
     options.log?.('project warmed', { projectId: f.projectId, rows: read, ms: Math.round(performance.now() - t) });
   }
   return { projects, rows, ms: performance.now() - started };
+}
+
+/** Rows of the warm-up fit: above AUTO_DCD_ROWS, so the linear solver refits use (DCD) is compiled. */
+const WARM_ROWS = 1200;
+const WARM_COLS = 8;
+
+/**
+ * Starts each engine's thread and runs one small linear fit in it (1,200 × 8, deterministic), so
+ * that the first real refit does not pay for starting the thread and compiling the solver (about
+ * 3–4 s of a 100k × 256 quick pass). Returns the classes each fit found.
+ */
+export async function warmUpEngines(engines: readonly EngineRunner[]): Promise<string[][]> {
+  const X = new Float64Array(WARM_ROWS * WARM_COLS);
+  const labels: string[] = [];
+  for (let i = 0; i < WARM_ROWS; i++) {
+    let s = 0;
+    for (let j = 0; j < WARM_COLS; j++) {
+      const v = (((i + 1) * (j + 3) * 7919) % 1009) / 1009 - 0.5;
+      X[i * WARM_COLS + j] = v;
+      s += j % 2 === 0 ? v : -v;
+    }
+    labels.push(s >= 0 ? 'up' : 'down');
+  }
+  const data = { ids: labels.map((_, i) => `w${i}`), labels, X: { data: X, rows: WARM_ROWS, cols: WARM_COLS } };
+  const settings = { ...engineSettings(DEFAULT_PROJECT_SETTINGS, WARM_ROWS, WARM_COLS, null), pivotCap: 0 };
+  const found: string[][] = [];
+  for (const engine of engines) found.push([...(await engine.fit(data, settings, () => {})).classes]);
+  return found;
 }

@@ -19,7 +19,7 @@ import { persistentWorkerEngine } from '../fits/engine';
 import { startFitJobWorker, type FitJobWorker } from '../fits/job-system';
 import { startImportJobWorker } from '../import/job';
 import { workerStandingsWriter } from '../fits/standings-writer';
-import { warmUpFeatureMatrices } from '../fits/warm';
+import { warmUpEngines, warmUpFeatureMatrices } from '../fits/warm';
 import { startJobSystem } from '../jobs/boss';
 import { log as rootLog } from '../log';
 import { prepareDatabaseOrExit } from '../startup';
@@ -51,10 +51,11 @@ export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Pro
     onError: (error) => logger.error('job system error', { error: error.message }),
   });
   const leaseMs = e.BORDERLINE_FIT_LEASE_SECONDS * 1000;
+  const engines = Array.from({ length: e.BORDERLINE_WORKER_CONCURRENCY }, () => persistentWorkerEngine());
   const fits: FitJobWorker = await startFitJobWorker({
     db: defaultDb(),
     boss,
-    engines: Array.from({ length: e.BORDERLINE_WORKER_CONCURRENCY }, () => persistentWorkerEngine()),
+    engines,
     standingsWriter: workerStandingsWriter(e.database),
     lease: { workerId, heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs },
     sweepMs: Math.max(1000, Math.floor(leaseMs / 3)),
@@ -63,8 +64,10 @@ export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Pro
   await startImportJobWorker({ db: defaultDb(), boss, workerId, lease: { heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs }, log });
   log('worker started', { concurrency: e.BORDERLINE_WORKER_CONCURRENCY, leaseSeconds: e.BORDERLINE_FIT_LEASE_SECONDS });
   // In the background: jobs are taken from now on; a refit of a project being read shares the read.
-  void warmUpFeatureMatrices(defaultDb(), { hours: Number(process.env.BORDERLINE_WORKER_WARM_HOURS ?? 24), log })
-    .then((w) => log('worker warm', { projects: w.projects.length, rows: w.rows, ms: Math.round(w.ms) }))
+  const warmStart = performance.now();
+  void warmUpEngines(engines)
+    .then(() => warmUpFeatureMatrices(defaultDb(), { hours: Number(process.env.BORDERLINE_WORKER_WARM_HOURS ?? 24), log }))
+    .then((w) => log('worker warm', { projects: w.projects.length, rows: w.rows, ms: Math.round(performance.now() - warmStart) }))
     .catch((error: unknown) => logger.warn('warm-up stopped', { error: error instanceof Error ? error.message : String(error) }));
   return {
     workerId,
