@@ -40,7 +40,9 @@ export async function scratchPgDatabase(name: string): Promise<{ url: string; dr
  * jobs. `onLog` sees each of its JSON log lines (stdout).
  */
 export function startWorker(url: string, options: { env?: Record<string, string>; detached?: boolean; onLog?: (entry: { msg?: string }, line: string) => void } = {}): Promise<ChildProcess> {
-  const child = spawn(process.execPath, ['--import', 'tsx', join(ROOT, 'scripts', 'worker.ts')], {
+  // BENCH_CPU_PROF=<dir>: V8 CPU profiles of the worker's threads too (written when it exits).
+  const profile = process.env.BENCH_CPU_PROF ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_CPU_PROF}`] : [];
+  const child = spawn(process.execPath, [...profile, '--import', 'tsx', join(ROOT, 'scripts', 'worker.ts')], {
     cwd: ROOT,
     detached: options.detached ?? false,
     stdio: ['ignore', 'pipe', 'inherit'],

@@ -239,6 +239,24 @@ describe('a fit', () => {
   });
 });
 
+describe('warm start after a restart', () => {
+  // A process that did not run the previous fit (a worker, or the app after a restart) takes the
+  // warm start from the stored model; the model records the project's scaling, an l2 project's
+  // rows being normalised before the engine sees them.
+  it.each(['standard', 'l2', 'none'] as const)('scaling %s: the refit is warm-started from the stored model', async (scale) => {
+    const f = await twoClassProject({ applyEvery: 1, scale });
+    await queueFit(f, await revision0(f));
+    const first = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(first?.status).toBe('done');
+    resetFitMemory();
+    await queueFit(f, await addRevision(f, 1));
+    const second = await processProject(db, f.projectId, { engine: inlineEngine });
+    const fit = await db.fit.findUniqueOrThrow({ where: { id: second?.fitId } });
+    expect(fit.warmFromFitId).toBe(first?.fitId);
+    expect((JSON.parse(fit.metrics ?? '{}') as { warmStarted: boolean }).warmStarted).toBe(true);
+  });
+});
+
 describe('quick passes and engines', () => {
   it('a large project gets a warm quick pass with held-out values carried from the last full pass (also after a restart), then a full pass', async () => {
     const f = await twoClassProject({ applyEvery: 1 });

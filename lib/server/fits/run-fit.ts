@@ -148,9 +148,13 @@ export function engineSettings(s: ProjectSettings, rows: number, cols: number, c
   };
 }
 
-/** Fits whose duals can warm-start each other solve the same problem family. */
-function warmKey(fs: FitSettings): string {
-  return JSON.stringify([fs.kernel, fs.C, fs.solver, fs.scale]);
+/**
+ * Fits whose duals can warm-start each other solve the same problem family. `scale` is the
+ * project's scaling, as a stored model's header records it (an `l2` project is fitted by the
+ * engine with scaling "none" on rows normalised here, and its model says `l2`).
+ */
+function warmKey(fs: FitSettings, scale: ProjectSettings['scale']): string {
+  return JSON.stringify([fs.kernel, fs.C, fs.solver, scale]);
 }
 
 /** Out-of-fold values can be carried between fits with the same problem and the same folds. */
@@ -290,7 +294,7 @@ export async function prepareProjectMemory(db: Db, projectId: string): Promise<n
   const engineScale: FitSettings['scale'] = l2 ? 'none' : s.scale;
   const carried = await carriedFor(db, projectId, carryKey(engineSettings(s, n, input.cols, null, engineScale)));
   const chosen = s.autoSelect ? (carried?.chosen ?? null) : null;
-  await warmStartFor(db, projectId, warmKey(engineSettings(s, n, input.cols, chosen, engineScale)));
+  await warmStartFor(db, projectId, warmKey(engineSettings(s, n, input.cols, chosen, engineScale), s.scale));
   return n;
 }
 
@@ -704,7 +708,7 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
       chosen = { C: sel.best.C, gamma: sel.best.gamma };
     }
     const fitSettings = engineSettings(s, n, d, chosen, engineScale);
-    const warm = await warmStartFor(db, projectId, warmKey(fitSettings));
+    const warm = await warmStartFor(db, projectId, warmKey(fitSettings, s.scale));
     const settingsWithWarm: FitSettings = warm ? { ...fitSettings, warmStart: warm.warm } : fitSettings;
     let fit: FitResult;
     let audit: AuditResult | null = null;
@@ -791,7 +795,7 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     // Remember what the next fits can reuse.
     warmStore().set(projectId, {
       fitId,
-      key: warmKey(fitSettings),
+      key: warmKey(fitSettings, snapshot.settings.scale),
       warm: { ids: input.sampleIds, boundaries: fit.boundaries.map((b) => ({ positive: b.positive, negative: b.negative, alpha: b.solution.alpha })) },
     });
     if (audit) {
