@@ -10,6 +10,8 @@ import { persistentWorkerEngine } from '@/lib/server/fits/engine';
 import { engineSettings } from '@/lib/server/fits/run-fit';
 import type { FeatureMatrix } from '@/lib/server/fits/data';
 import { neighboursOfRow, PREFETCH_NICE, prefetchNeighbours } from '@/lib/server/queue/neighbour-service';
+import { workerStandingsWriter } from '@/lib/server/fits/standings-writer';
+import { createTestDatabase, TEST_PROVIDER } from './db-harness';
 
 function taskNiceValues(): number[] {
   return readdirSync('/proc/self/task').map((tid) => {
@@ -65,5 +67,22 @@ describe.skipIf(!existsSync('/proc/self/task'))('the neighbour search threads', 
     expect(after.filter((n) => n === 15).length).toBe(before15 + 1);
     expect(after.length).toBeGreaterThanOrEqual(before.length + 2);
     expect(getPriority(0)).toBe(0);
+  });
+});
+
+describe.skipIf(!existsSync('/proc/self/task'))('the standings writer thread', () => {
+  it(`runs at nice 10 on PostgreSQL and at the normal priority on SQLite (here: ${TEST_PROVIDER})`, async () => {
+    const t = await createTestDatabase();
+    try {
+      await t.migrate();
+      const before = taskNiceValues();
+      const writer = workerStandingsWriter(t.config);
+      expect(await writer.prune(['no-such-fit'])).toBe(0); // starts the thread, deletes nothing
+      const after = taskNiceValues();
+      const at10 = (v: number[]) => v.filter((n) => n === 10).length;
+      expect(at10(after) - at10(before)).toBe(TEST_PROVIDER === 'postgresql' ? 1 : 0);
+    } finally {
+      await t.drop();
+    }
   });
 });

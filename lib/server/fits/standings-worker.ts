@@ -16,6 +16,7 @@
  * Between batches the worker pauses a few milliseconds with no lock held, so other writers (the
  * server's own connection, other processes) get their turn.
  */
+import { setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
 import Database from 'better-sqlite3';
 import pg from 'pg';
@@ -60,6 +61,21 @@ const COLUMNS = ['id', 'fitId', 'sampleId', 'margin', 'distance', 'slack', 'alph
 const port = parentPort;
 if (!port) throw new Error('lib/server/fits/standings-worker.ts must run in a worker thread');
 const config = workerData as Config;
+
+/**
+ * On PostgreSQL storing standings is background work that nobody waits for (the queue was rebuilt
+ * before), so this thread asks for a lower OS priority, like the engine thread (nice 10). Not on
+ * SQLite: there the thread holds the database's write lock while a statement runs, and a thread
+ * preempted while holding it would keep reviewers' writes waiting.
+ */
+export const STANDINGS_NICE_POSTGRESQL = 10;
+if (config.provider === 'postgresql') {
+  try {
+    setPriority(0, STANDINGS_NICE_POSTGRESQL);
+  } catch {
+    // Not permitted here: run at the normal priority.
+  }
+}
 
 function finite(v: number): number {
   if (Number.isNaN(v)) return 0;
