@@ -107,6 +107,7 @@ async function serve(): Promise<void> {
   // The app's modules read DATABASE_URL on first use; the parent set it in our environment.
   const { runWithRequestContext } = await import('../lib/server/authz/context');
   const { claimNextItem } = await import('../app/actions/claim-next-item');
+  const { record } = await import('../lib/server/queue/trace');
   const { castVote } = await import('../app/actions/cast-vote');
   const { ensureFitWorker } = await import('../lib/server/fits');
   const { importJsonResponse } = await import('../lib/server/import/http');
@@ -139,8 +140,11 @@ async function serve(): Promise<void> {
       const userId = String(req.headers['x-user'] ?? '');
       const body: unknown = JSON.parse((await read(req)) || '{}');
       const ctx = { sessionUserId: async () => userId || null, address: async () => '127.0.0.1', now: () => new Date() };
+      const t0 = performance.now();
       const result: unknown =
         req.url === '/next' ? await runWithRequestContext(ctx, () => claimNextItem(body)) : await runWithRequestContext(ctx, () => castVote(body));
+      // With BORDERLINE_QUEUE_TRACE: the whole action (authorization wrapper included) beside its stages.
+      record(req.url === '/next' ? 'action.next' : 'action.vote', performance.now() - t0);
       const text = JSON.stringify(result);
       res.writeHead(200, { 'content-type': 'application/json', 'content-length': Buffer.byteLength(text) });
       res.end(text);
@@ -158,7 +162,7 @@ async function serve(): Promise<void> {
 
   const loop = monitorEventLoopDelay({ resolution: 10 });
   loop.enable();
-  const { traceReport, record } = await import('../lib/server/queue/trace');
+  const { traceReport } = await import('../lib/server/queue/trace');
   if (process.env.BENCH_SQL_PROFILE === '1') {
     // Wraps every prepared statement of better-sqlite3 (the driver of Prisma's SQLite adapter).
     const { createRequire } = await import('node:module');

@@ -312,7 +312,8 @@ describe('quick passes and engines', () => {
 
 describe('standings writers', () => {
   it('the writer thread stores the same rows as the inline writer', async () => {
-    const byWriter: Map<string, { margin: number; flags: string; suspicion: number; detail: string; predicted: string }>[] = [];
+    type Row = { margin: number; distance: number; slack: number; alpha: number; svKind: string; oofMargin: number | null; flags: string; suspicion: number; detail: string; predicted: string };
+    const byWriter: Map<string, Row>[] = [];
     for (const standingsWriter of [inlineStandingsWriter(db), workerStandingsWriter(t.config)]) {
       const f = await twoClassProject();
       await queueFit(f, await revision0(f));
@@ -322,7 +323,23 @@ describe('standings writers', () => {
       expect(rows).toHaveLength(80);
       expect(rows.every((r) => r.id.startsWith(`${out?.fitId}:`))).toBe(true);
       byWriter.push(
-        new Map(rows.map((r) => [r.sample.externalId, { margin: r.margin, flags: r.flags, suspicion: r.suspicion, detail: Buffer.from(r.detail ?? new Uint8Array()).toString('hex'), predicted: r.predicted }])),
+        new Map(
+          rows.map((r) => [
+            r.sample.externalId,
+            {
+              margin: r.margin,
+              distance: r.distance,
+              slack: r.slack,
+              alpha: r.alpha,
+              svKind: r.svKind,
+              oofMargin: r.oofMargin,
+              flags: r.flags,
+              suspicion: r.suspicion,
+              detail: Buffer.from(r.detail ?? new Uint8Array()).toString('hex'),
+              predicted: r.predicted,
+            },
+          ]),
+        ),
       );
     }
     expect([...byWriter[1].entries()].sort()).toEqual([...byWriter[0].entries()].sort());
