@@ -321,6 +321,11 @@ describe('standings writers', () => {
       expect(out?.status).toBe('done');
       const rows = await db.standing.findMany({ where: { fitId: out?.fitId }, include: { sample: true } });
       expect(rows).toHaveLength(80);
+      // The model went through the same writer: stored whole, and it decodes to this fit's samples.
+      const stored = await db.fit.findUniqueOrThrow({ where: { id: out?.fitId }, select: { model: true } });
+      const decoded = decodeModel(stored.model ?? new Uint8Array());
+      expect(new Set(decoded.header.sampleIds)).toEqual(new Set(rows.map((r) => r.sampleId)));
+      expect(decoded.boundaries[0].alpha).toHaveLength(80);
       expect(rows.every((r) => r.id.startsWith(`${out?.fitId}:`))).toBe(true);
       byWriter.push(
         new Map(

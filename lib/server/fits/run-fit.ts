@@ -813,8 +813,8 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     // The serialised model (warm start for a later process, evaluation on new rows), then the
     // standings: both after the queue is refreshed, so neither delays it.
     const model = encodeModel(fit, input.sampleIds, preprocessorOverride, audit ? { oof: audit.outOfFold.decision, pivotDelta: pivotDeltas(fit) } : null);
-    await serialWrite(db, () => db.fit.update({ where: { id: fitId }, data: { model } }));
     const writer = options.standingsWriter ?? inlineStandingsWriter(db);
+    await writer.model(fitId, model);
     await writer.write(fitId, records.columns());
     await serialWrite(db, () => db.fit.update({ where: { id: fitId }, data: { progress: 1 } }));
     const standingsMs = performance.now() - standingsStart;

@@ -12,6 +12,7 @@
  * Protocol:
  *   ← { type: 'write', id, fitId, rows: StandingColumns }   → { type: 'done', id, count }
  *   ← { type: 'prune', id, fitIds: string[] }                → { type: 'done', id, count }
+ *   ← { type: 'model', id, fitId, bytes }  (Fit.model)         → { type: 'done', id, count }
  *   → { type: 'error', id, message }
  * Between batches the worker pauses a few milliseconds with no lock held, so other writers (the
  * server's own connection, other processes) get their turn.
@@ -45,7 +46,10 @@ export interface StandingColumns {
 }
 
 type Config = { provider: 'sqlite'; file: string; gate?: Int32Array } | { provider: 'postgresql'; url: string };
-type Message = { type: 'write'; id: number; fitId: string; rows: StandingColumns } | { type: 'prune'; id: number; fitIds: string[] };
+type Message =
+  | { type: 'write'; id: number; fitId: string; rows: StandingColumns }
+  | { type: 'prune'; id: number; fitIds: string[] }
+  | { type: 'model'; id: number; fitId: string; bytes: Uint8Array };
 
 // The server connection's PRAGMAs (lib/server/db.ts SQLITE_PRAGMAS), repeated here so this thread
 // does not load the ORM; busy_timeout comes from the constructor's `timeout`.
@@ -202,11 +206,21 @@ async function prune(fitIds: readonly string[]): Promise<number> {
   return removed;
 }
 
+/** Stores a fit's serialised model (one statement; on SQLite a background writer's turn like the rest). */
+async function model(fitId: string, bytes: Uint8Array): Promise<number> {
+  const blob = Buffer.from(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  if (config.provider === 'sqlite') {
+    const update = openSqlite().prepare('UPDATE "Fit" SET "model" = ? WHERE "id" = ?');
+    return (await turn(() => update.run(blob, fitId))).changes;
+  }
+  return (await openPool().query('UPDATE "Fit" SET "model" = $1 WHERE "id" = $2', [blob, fitId])).rowCount ?? 0;
+}
+
 let chain: Promise<unknown> = Promise.resolve();
 port.on('message', (m: Message) => {
   chain = chain.then(async () => {
     try {
-      const count = m.type === 'write' ? await write(m.fitId, m.rows) : await prune(m.fitIds);
+      const count = m.type === 'write' ? await write(m.fitId, m.rows) : m.type === 'model' ? await model(m.fitId, m.bytes) : await prune(m.fitIds);
       port.postMessage({ type: 'done', id: m.id, count });
     } catch (e) {
       port.postMessage({ type: 'error', id: m.id, message: e instanceof Error ? e.message : String(e) });

@@ -6,7 +6,7 @@
  *   (standings-worker.ts), used by the app's fit worker so that a 100k-row write does not occupy the
  *   thread that answers reviewers.
  * Both take the standings as columns (typed arrays), write rows with ids `<fitId>:<sequence>` in
- * sample order, and prune whole fits by those id ranges.
+ * sample order, prune whole fits by those id ranges, and store a fit's serialised model.
  */
 import { join } from 'node:path';
 import type { Worker } from 'node:worker_threads';
@@ -22,6 +22,8 @@ export type { StandingColumns } from './standings-worker';
 
 export interface StandingsWriter {
   write(fitId: string, columns: StandingColumns): Promise<number>;
+  /** Stores the fit's serialised model (`Fit.model`); the worker writer takes over the buffer. Resolves with the rows changed (0 when the fit is gone). */
+  model(fitId: string, model: Uint8Array<ArrayBuffer>): Promise<number>;
   /** Deletes every standing of these fits. */
   prune(fitIds: readonly string[]): Promise<number>;
 }
@@ -49,6 +51,7 @@ export function rowFromColumns(c: StandingColumns, i: number): StandingRow {
 export function inlineStandingsWriter(db: Db): StandingsWriter {
   return {
     write: (fitId, c) => insertStandings(db, providerOf(db), fitId, c.sampleIds.length, (i) => rowFromColumns(c, i)),
+    model: async (fitId, model) => (await serialWrite(db, () => db.fit.updateMany({ where: { id: fitId }, data: { model } }))).count,
     async prune(fitIds) {
       let removed = 0;
       for (const fitId of fitIds) {
@@ -92,14 +95,16 @@ export function workerStandingsWriter(config: DatabaseConfig): StandingsWriter {
     worker = w;
     return w;
   };
-  const send = (message: Record<string, unknown>) =>
+  const send = (message: Record<string, unknown>, transfer: ArrayBuffer[] = []) =>
     new Promise<number>((resolve, reject) => {
       const id = nextId++;
       pending.set(id, { resolve, reject });
-      ensure().postMessage({ ...message, id });
+      ensure().postMessage({ ...message, id }, transfer);
     });
   return {
     write: (fitId, columns) => send({ type: 'write', fitId, rows: columns }),
+    // The blob (megabytes for 100k samples) is moved to the thread, and written there.
+    model: (fitId, model) => send({ type: 'model', fitId, bytes: model }, [model.buffer]),
     prune: (fitIds) => (fitIds.length === 0 ? Promise.resolve(0) : send({ type: 'prune', fitIds: [...fitIds] })),
   };
 }
