@@ -41,8 +41,8 @@ export function fitWorkerPath(root: string = process.cwd()): string {
 
 /**
  * An engine thread with no job for this long is stopped (its heap returned). Starting one again
- * and compiling the solvers costs a 100k × 256 quick pass about 3–4 s on top of its 1.5 s, so the
- * thread is kept through the pauses of a working session.
+ * means a thread start and compiling the engine before the next refit, so the thread is kept
+ * through the pauses of a working session.
  */
 const IDLE_MS = 30 * 60_000;
 

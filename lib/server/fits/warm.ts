@@ -62,8 +62,8 @@ const WARM_COLS = 8;
 
 /**
  * Starts each engine's thread and runs one small linear fit in it (1,200 × 8, deterministic), so
- * that the first real refit does not pay for starting the thread and compiling the solver (about
- * 3–4 s of a 100k × 256 quick pass). Returns the classes each fit found.
+ * that the first real refit does not pay for starting the thread and compiling the solver.
+ * Returns the classes each fit found.
  */
 export async function warmUpEngines(engines: readonly EngineRunner[]): Promise<string[][]> {
   const X = new Float64Array(WARM_ROWS * WARM_COLS);
