@@ -61,6 +61,8 @@ const variables = z.object({
   BORDERLINE_FIT_LEASE_SECONDS: wholeNumber('must be a whole number of seconds', [3, 'must be at least 3 (seconds)'], [3600, 'must be at most 3600 (one hour)']).default(30),
   /** Fits each `npm run worker` process runs at the same time. */
   BORDERLINE_WORKER_CONCURRENCY: wholeNumber('must be a whole number', [1, 'must be at least 1'], [16, 'must be at most 16']).default(1),
+  /** A starting `npm run worker` reads the data of projects fitted within this many hours (0: none). */
+  BORDERLINE_WORKER_WARM_HOURS: wholeNumber('must be a whole number of hours', [0, 'must be 0 or more'], [720, 'must be at most 720 (30 days)']).default(24),
 });
 
 export type RawEnv = z.infer<typeof variables>;

@@ -210,6 +210,7 @@ describe('checked environment (env.ts)', () => {
     expect(() => parseEnv({ BORDERLINE_JOBS: 'queue' }, r)).toThrow('BORDERLINE_JOBS must be auto, in-process or job-system (got "queue")');
     expect(() => parseEnv({ BORDERLINE_FIT_LEASE_SECONDS: '2' }, r)).toThrow('BORDERLINE_FIT_LEASE_SECONDS must be at least 3 (seconds) (got "2")');
     expect(() => parseEnv({ BORDERLINE_WORKER_CONCURRENCY: '1.5' }, r)).toThrow('BORDERLINE_WORKER_CONCURRENCY must be a whole number (got "1.5")');
+    expect(() => parseEnv({ BORDERLINE_WORKER_WARM_HOURS: '-1' }, r)).toThrow('BORDERLINE_WORKER_WARM_HOURS must be 0 or more (got "-1")');
     expect(() => parseEnv({ BORDERLINE_SESSION_HOURS: '200' }, r)).toThrow('BORDERLINE_SESSION_HOURS must be at most 168 (one week) (got "200")');
   });
 

@@ -4,7 +4,8 @@
  * registers the job handlers — refits (with pivots and out-of-fold runs, lib/server/fits) and
  * staged imports — then reads the feature matrices of recently fitted projects in the background
  * (lib/server/fits/warm.ts; `BORDERLINE_WORKER_WARM_HOURS`, default 24, 0 turns it off), so the
- * first refit after a restart is as quick as the later ones. Any number of these processes may run against one database, on any machines.
+ * first refit after a restart is as quick as the later ones. Any number of these processes may
+ * run against one database, on any machines.
  *
  * SIGTERM / SIGINT stop taking jobs, let the running ones finish (up to `BORDERLINE_WORKER_STOP_SECONDS`,
  * default 60 s; an unfinished fit is then picked up by another worker once its lease runs out) and
@@ -66,7 +67,7 @@ export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Pro
   // In the background: jobs are taken from now on; a refit of a project being read shares the read.
   const warmStart = performance.now();
   void warmUpEngines(engines)
-    .then(() => warmUpFeatureMatrices(defaultDb(), { hours: Number(process.env.BORDERLINE_WORKER_WARM_HOURS ?? 24), log }))
+    .then(() => warmUpFeatureMatrices(defaultDb(), { hours: e.BORDERLINE_WORKER_WARM_HOURS, log }))
     .then((w) => log('worker warm', { projects: w.projects.length, rows: w.rows, ms: Math.round(performance.now() - warmStart) }))
     .catch((error: unknown) => logger.warn('warm-up stopped', { error: error instanceof Error ? error.message : String(error) }));
   return {
