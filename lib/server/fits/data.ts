@@ -64,6 +64,7 @@ const PAGE = 1000;
 /** Rows per read of the labels (three short columns). */
 const LABEL_PAGE = 10_000;
 
+/** Lets requests waiting on this thread's event loop through during long main-thread loops. */
 export const yieldToEventLoop = () => new Promise<void>((resolve) => setImmediate(resolve));
 
 /** The cheap part of the fingerprint: the newest import / update revision of the project. */

@@ -12,29 +12,20 @@
  * Cancellation: the server sets the job's shared flag; the solvers' progress callbacks and every
  * stage boundary read it and abort the job's AbortController (as lib/margin/worker.ts does).
  */
-import { setPriority } from 'node:os';
 import { parentPort } from 'node:worker_threads';
 import { auditSamples } from '../../margin/audit';
 import { fitMargins, type EngineStage } from '../../margin/model';
 import type { EngineJob, WorkerProgress } from '../../margin/run-in-worker';
 import { selectModel } from '../../margin/select';
 import type { SolverProgress } from '../../margin/types';
+import { lowerThreadPriority } from '../thread-priority';
 
 const port = parentPort;
 if (!port) throw new Error('lib/server/fits/fit-worker.ts must run in a worker thread');
 
-/**
- * Refits are background work: this thread asks the OS for a lower priority (nice 10) so the
- * threads serving reviewers win the CPU when both want it. On Linux, setpriority(PRIO_PROCESS, 0)
- * applies to the calling thread only (threads are scheduled as tasks); where it is refused, the
- * thread simply keeps the normal priority.
- */
+/** Refits are background work: this thread runs at nice 10 (lib/server/thread-priority.ts). */
 export const ENGINE_NICE = 10;
-try {
-  setPriority(0, ENGINE_NICE);
-} catch {
-  // Not permitted here: run at the normal priority.
-}
+lowerThreadPriority(ENGINE_NICE);
 
 /** Every distinct, transferable ArrayBuffer reachable from a result (SharedArrayBuffers stay shared). */
 function buffersOf(value: unknown, out: Set<ArrayBuffer>, seen: Set<object>): void {

@@ -340,8 +340,6 @@ function marginFrom(decisions: ArrayLike<number>, classes: readonly string[], la
   return { margin: decisions[own] - bestOther, predicted: best };
 }
 
-/** Lets requests waiting on this thread's event loop through during long main-thread loops. */
-
 function reasonsOf(flagMask: number, oofMargin: number): string[] {
   const reasons: string[] = flagNames(flagMask);
   if (oofMargin < 0) reasons.push('held-out-wrong-side');

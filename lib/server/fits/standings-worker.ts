@@ -17,12 +17,12 @@
  * Between batches the worker pauses a few milliseconds with no lock held, so other writers (the
  * server's own connection, other processes) get their turn.
  */
-import { setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
 import Database from 'better-sqlite3';
 import pg from 'pg';
 import { flagNames, supportKindName } from '../../margin/standings';
 import { backgroundTurn, GATE_BACKGROUND_BUSY } from '../sqlite-gate';
+import { lowerThreadPriority } from '../thread-priority';
 
 export interface StandingColumns {
   readonly sampleIds: readonly string[];
@@ -87,14 +87,8 @@ const config = workerData as Config;
  * SQLite: there the thread holds the database's write lock while a statement runs, and a thread
  * preempted while holding it would keep reviewers' writes waiting.
  */
-export const STANDINGS_NICE_POSTGRESQL = 10;
-if (config.provider === 'postgresql') {
-  try {
-    setPriority(0, STANDINGS_NICE_POSTGRESQL);
-  } catch {
-    // Not permitted here: run at the normal priority.
-  }
-}
+const STANDINGS_NICE_POSTGRESQL = 10;
+if (config.provider === 'postgresql') lowerThreadPriority(STANDINGS_NICE_POSTGRESQL);
 
 function finite(v: number): number {
   if (Number.isNaN(v)) return 0;

@@ -9,7 +9,7 @@
 import { DEFAULT_PROJECT_SETTINGS } from '../../domain-queue';
 import type { Db } from '../db';
 import type { EngineRunner } from './engine';
-import { cachedFeatureMatrix, FEATURE_CACHE_BYTES } from './data';
+import { FEATURE_CACHE_BYTES } from './data';
 import { engineSettings, prepareProjectMemory } from './run-fit';
 
 export interface WarmUpOptions {
@@ -26,11 +26,9 @@ export interface WarmUpOptions {
 export interface WarmUpResult {
   readonly projects: string[];
   readonly rows: number;
-  readonly ms: number;
 }
 
 export async function warmUpFeatureMatrices(db: Db, options: WarmUpOptions = {}): Promise<WarmUpResult> {
-  const started = performance.now();
   const since = new Date((options.now ?? new Date()).getTime() - (options.hours ?? 24) * 3600_000);
   const recent = await db.fit.findMany({
     where: { status: 'done', finishedAt: { gte: since } },
@@ -47,13 +45,12 @@ export async function warmUpFeatureMatrices(db: Db, options: WarmUpOptions = {})
     if (bytes > budget) continue;
     budget -= bytes;
     const t = performance.now();
-    await prepareProjectMemory(db, f.projectId);
-    const read = cachedFeatureMatrix(f.projectId)?.rows ?? 0;
+    const read = await prepareProjectMemory(db, f.projectId);
     projects.push(f.projectId);
     rows += read;
     options.log?.('project warmed', { projectId: f.projectId, rows: read, ms: Math.round(performance.now() - t) });
   }
-  return { projects, rows, ms: performance.now() - started };
+  return { projects, rows };
 }
 
 /** Rows of the warm-up fit: above AUTO_DCD_ROWS, so the linear solver refits use (DCD) is compiled. */

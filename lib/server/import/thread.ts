@@ -138,29 +138,26 @@ export async function importInThread(
   const w = thread();
   const st = state();
   const id = st.nextId++;
-  let settled = false;
   const done = new Promise<ImportOutcome>((resolve, reject) => {
     st.running.set(id, { onProgress: options.onProgress, resolve, reject, inFlight: 0, wake: null });
-  }).finally(() => {
-    settled = true;
   });
-  done.catch(() => undefined);
+  done.catch(() => undefined); // awaited below; not an unhandled rejection meanwhile
   w.ref(); // keep the process up while an import runs
   try {
-    post(w, { type: 'start', id, database, teamId: scope.teamId, projectId, input });
+    w.postMessage({ type: 'start', id, database, teamId: scope.teamId, projectId, input } satisfies ToThread);
     try {
       for await (const chunk of source) {
         const r = st.running.get(id);
-        if (!r || settled) break; // the thread finished early (a refusal stops reading)
+        if (!r) break; // the thread finished early (a refusal stops reading)
         const bytes = new Uint8Array(chunk); // a copy of our own to transfer
         r.inFlight += bytes.byteLength;
         w.postMessage({ type: 'chunk', id, bytes } satisfies ToThread, [bytes.buffer]);
         while (r.inFlight > IN_FLIGHT_BYTES && st.running.has(id)) await new Promise<void>((wake) => (r.wake = wake));
         r.wake = null;
       }
-      if (st.running.has(id)) post(w, { type: 'end', id });
+      if (st.running.has(id)) w.postMessage({ type: 'end', id } satisfies ToThread);
     } catch (error) {
-      if (st.running.has(id)) post(w, { type: 'fail', id, error: toThreadError(error) });
+      if (st.running.has(id)) w.postMessage({ type: 'fail', id, error: toThreadError(error) } satisfies ToThread);
     }
     const outcome = await done;
     if (outcome.ok && outcome.fitId !== null && outcome.revisionNumber !== null) await announceRefit({ fitId: outcome.fitId, projectId, revisionNumber: outcome.revisionNumber });
@@ -168,10 +165,6 @@ export async function importInThread(
   } finally {
     if (st.running.size === 0) w.unref();
   }
-}
-
-function post(w: Worker, m: ToThread): void {
-  w.postMessage(m);
 }
 
 /** Whether this process has started its import thread (diagnostics and tests). */

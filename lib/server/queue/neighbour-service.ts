@@ -28,21 +28,22 @@ interface Lane {
   failed: boolean;
   /** projectId → fingerprint sent to this worker */
   sent: Map<string, string>;
+  /** queries sent to this worker and not answered yet (failed with it if it dies) */
+  pending: Map<number, Pending>;
 }
 
 interface State {
   lanes: Record<Kind, Lane>;
   nextId: number;
-  pending: Map<number, Pending>;
   cache: Map<string, Neighbour[]>;
   /** searches under way; `urgent` ones serve a reviewer who is waiting */
   inflight: Map<string, { promise: Promise<Neighbour[]>; urgent: boolean }>;
 }
 
-const lane = (): Lane => ({ worker: null, failed: false, sent: new Map() });
+const lane = (): Lane => ({ worker: null, failed: false, sent: new Map(), pending: new Map() });
 const holder = globalThis as typeof globalThis & { __borderlineNeighbours?: State };
 function state(): State {
-  holder.__borderlineNeighbours ??= { lanes: { urgent: lane(), prefetch: lane() }, nextId: 1, pending: new Map(), cache: new Map(), inflight: new Map() };
+  holder.__borderlineNeighbours ??= { lanes: { urgent: lane(), prefetch: lane() }, nextId: 1, cache: new Map(), inflight: new Map() };
   return holder.__borderlineNeighbours;
 }
 
@@ -53,12 +54,10 @@ function worker(kind: Kind): Worker | null {
   try {
     const w = startTsWorker(join(process.cwd(), 'lib', 'server', 'queue', 'neighbour-worker.ts'), { nice: kind === 'prefetch' ? PREFETCH_NICE : 0 });
     w.unref();
-    const mine = new Set<number>();
     w.on('message', (m: { type: 'result'; id: number; results: Neighbour[][] } | { type: 'error'; id: number; message: string }) => {
-      const p = st.pending.get(m.id);
-      mine.delete(m.id);
+      const p = l.pending.get(m.id);
       if (!p) return;
-      st.pending.delete(m.id);
+      l.pending.delete(m.id);
       if (m.type === 'result') p.resolve(m.results);
       else p.reject(new Error(m.message));
     });
@@ -66,24 +65,17 @@ function worker(kind: Kind): Worker | null {
       l.worker = null;
       l.failed = true;
       l.sent.clear();
-      for (const id of mine) {
-        st.pending.get(id)?.reject(e instanceof Error ? e : new Error(String(e)));
-        st.pending.delete(id);
-      }
-      mine.clear();
+      for (const p of l.pending.values()) p.reject(e instanceof Error ? e : new Error(String(e)));
+      l.pending.clear();
     };
     w.on('error', fail);
     w.on('exit', (code) => fail(new Error(`neighbour worker exited (${code})`)));
     l.worker = w;
-    workerQueries.set(w, mine);
   } catch {
     l.failed = true;
   }
   return l.worker;
 }
-
-/** Query ids sent to each worker and not answered yet (failed with it if it dies). */
-const workerQueries = new WeakMap<Worker, Set<number>>();
 
 function keyOf(m: FeatureMatrix, scaling: Scaling, row: number): string {
   return `${m.projectId}|${m.fingerprint}|${scaling}|${row}`;
@@ -101,8 +93,7 @@ async function search(m: FeatureMatrix, scaling: Scaling, rows: number[], urgent
   }
   const id = st.nextId++;
   return new Promise<Neighbour[][]>((resolve, reject) => {
-    st.pending.set(id, { resolve, reject });
-    workerQueries.get(w)?.add(id);
+    l.pending.set(id, { resolve, reject });
     w.postMessage({ type: 'query', id, projectId: m.projectId, fingerprint: m.fingerprint, scaling, rows, k: K, urgent });
   }).catch(() => rows.map((r) => nearestNeighbours(m, scaling, r, K)));
 }

@@ -1,9 +1,9 @@
 /**
  * Worker-thread entry for nearest-neighbour searches (started by neighbour-service.ts, twice: one
  * thread for reviewers who wait, one at a lower priority for searches ahead of time; not imported
- * by anything else). workerData: { nice } — the OS priority this thread asks for (Linux: per
- * thread; refused → normal priority). The feature matrix arrives once per fingerprint as a SharedArrayBuffer-backed
- * Float32Array, so it is shared with the server thread, not copied.
+ * by anything else). workerData: { nice } — the OS priority this thread asks for
+ * (lib/server/thread-priority.ts). The feature matrix arrives once per fingerprint as a
+ * SharedArrayBuffer-backed Float32Array, so it is shared with the server thread, not copied.
  *
  * Protocol:
  *   ← { type: 'matrix', view: MatrixView }
@@ -14,8 +14,8 @@
  *   → { type: 'result', id, results: Neighbour[][] }   (one list per requested row)
  *   → { type: 'error', id, message }
  */
-import { setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
+import { lowerThreadPriority } from '../thread-priority';
 import { nearestNeighboursOfRows, type MatrixView, type Neighbour, type Scaling } from './neighbours';
 
 type Query = { type: 'query'; id: number; projectId: string; fingerprint: string; scaling: Scaling; rows: number[]; k: number; urgent?: boolean };
@@ -29,13 +29,7 @@ const port = parentPort;
 if (!port) throw new Error('lib/server/queue/neighbour-worker.ts must run in a worker thread');
 
 const nice = (workerData as { nice?: unknown } | null)?.nice;
-if (typeof nice === 'number' && nice > 0) {
-  try {
-    setPriority(0, nice);
-  } catch {
-    // Not permitted here: run at the normal priority.
-  }
-}
+if (typeof nice === 'number' && nice > 0) lowerThreadPriority(nice);
 
 /**
  * Rows searched in one pass over the matrix (see nearestNeighboursOfRows): every waiting urgent
