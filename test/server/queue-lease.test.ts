@@ -7,6 +7,7 @@ import { createItems, createQueueFixture, manualClock, refusedWith } from './que
 import type { Db } from '@/lib/server/db';
 import { claimNext, releaseLease } from '@/lib/server/queue/claim';
 import { castVote } from '@/lib/server/queue/vote';
+import { itemForReviewer } from '@/lib/server/queue/view';
 
 let t: TestDatabase;
 let db: Db;
@@ -103,6 +104,22 @@ describe('claiming the next item', () => {
     expect(await claimNext(deps, f.scope, b, { projectId: f.projectId })).toBeNull();
     const obs = await refusedWith(claimNext(deps, f.scope, f.observer, { projectId: f.projectId }));
     expect(obs).toEqual({ status: 403, message: 'Observers can read the queue but cannot vote.' });
+  });
+
+  it('a scope of another team claims nothing and reads nothing: "not found", no lease taken', async () => {
+    // The scope check sits inside the claim and item-read statements (next.ts), not in a read before them.
+    const f = await createQueueFixture(db, { samples: 2 });
+    const other = await createQueueFixture(db, { samples: 1 });
+    const items = await createItems(db, f);
+    const deps = { db, clock: manualClock() };
+    const [a] = f.reviewers;
+    const claim = await refusedWith(claimNext(deps, other.scope, a, { projectId: f.projectId }));
+    expect(claim).toEqual({ status: 404, message: 'Not found. It may have been removed, or you may not have access to it.' });
+    expect(await db.queueItem.count({ where: { projectId: f.projectId, leaseUserId: { not: null } } })).toBe(0);
+    const view = await refusedWith(itemForReviewer(deps, other.scope, a, f.projectId, items[0]));
+    expect(view).toEqual({ status: 404, message: 'Not found. It may have been removed, or you may not have access to it.' });
+    // The same reviewer in the right scope gets the item.
+    expect((await claimNext(deps, f.scope, a, { projectId: f.projectId }))?.itemId).toBe(items[0]);
   });
 
   it('two reviewers racing for the only free item: exactly one gets it', async () => {

@@ -13,6 +13,8 @@
  *      re-read from the database now — not from the token                                → 404
  *   4. the caller's role must reach the required role                                    → 403
  *   5. run the handler with a TeamScope for that team; expected refusals are ActionErrors → 4xx
+ * Actions read the user, the resource's team and the membership in one statement (readCaller);
+ * the outcome for every caller is the same as checking the steps one by one.
  * The database not answering at any step (stopped, restarting, connections refused or cut, SQLite
  * locked past its busy timeout; lib/server/db-outage.ts) → 503 with MESSAGES.unavailable and
  * `retryable: true` (routes add Retry-After); logged as one warning line. A handler's transaction
@@ -28,7 +30,7 @@ import { log } from '../log';
 import { requestContext, type RequestContext } from './context';
 import { ActionError, failure, failureHeaders, MESSAGES, unavailable } from './errors';
 import { REGISTRY, type Access, type ActionName, type RouteName } from './registry';
-import { teamOfResource, type ResourceRef } from './resources';
+import { readCaller, type CallerRecord, type ResourceRef } from './resources';
 import { mintTeamScope, type TeamScope } from './scope';
 
 export type TeamRequirement = 'member' | 'reviewer' | 'lead';
@@ -101,7 +103,18 @@ export function failureFromError(name: string, error: unknown): ActionFailure {
 async function authenticate(ctx: RequestContext, client: Db): Promise<CallerUser | null> {
   const id = await ctx.sessionUserId();
   if (!id) return null;
-  return client.user.findUnique({ where: { id }, select: { id: true, name: true, email: true } });
+  return (await readCaller(client, id))?.user ?? null;
+}
+
+/** Steps 3 and 4 on a caller record read with the resource: membership of the owning team, then the role. */
+function judgeMember(record: CallerRecord, requirement: TeamRequirement): { ok: true; membership: MemberCaller['membership'] } | { ok: false; failure: ActionFailure } {
+  const m = record.membership;
+  if (record.teamId === null || !m || !isRole(m.role)) return { ok: false, failure: failure(404, MESSAGES.notFound) };
+  const needed = MINIMUM_ROLE[requirement];
+  if (!roleAtLeast(m.role, needed)) {
+    return { ok: false, failure: failure(403, MESSAGES.forbidden(requirement === 'reviewer' ? 'reviewer or lead' : 'lead')) };
+  }
+  return { ok: true, membership: { id: m.id, role: m.role, teamId: m.teamId } };
 }
 
 /** Steps 3 and 4: membership re-read from the database, then the role. */
@@ -111,18 +124,9 @@ export async function authorizeMember(
   ref: ResourceRef,
   requirement: TeamRequirement,
 ): Promise<{ ok: true; membership: MemberCaller['membership'] } | { ok: false; failure: ActionFailure }> {
-  const teamId = await teamOfResource(client, ref);
-  if (!teamId) return { ok: false, failure: failure(404, MESSAGES.notFound) };
-  const m = await client.membership.findUnique({
-    where: { teamId_userId: { teamId, userId } },
-    select: { id: true, role: true, teamId: true },
-  });
-  if (!m || !isRole(m.role)) return { ok: false, failure: failure(404, MESSAGES.notFound) };
-  const needed = MINIMUM_ROLE[requirement];
-  if (!roleAtLeast(m.role, needed)) {
-    return { ok: false, failure: failure(403, MESSAGES.forbidden(requirement === 'reviewer' ? 'reviewer or lead' : 'lead')) };
-  }
-  return { ok: true, membership: { id: m.id, role: m.role, teamId: m.teamId } };
+  const record = await readCaller(client, userId, ref);
+  if (!record) return { ok: false, failure: failure(404, MESSAGES.notFound) };
+  return judgeMember(record, requirement);
 }
 
 async function guarded<T>(name: string, run: () => Promise<ActionResult<T>>): Promise<ActionResult<T>> {
@@ -146,18 +150,22 @@ export function defineAction<S extends z.ZodType, T>(
     guarded(spec.name, async () => {
       const ctx = requestContext();
       const client = db();
-      const user = await authenticate(ctx, client);
-      if (!user) return failure(401, MESSAGES.unauthenticated);
+      // Validation is pure, so it runs first here; its result is reported only after the caller
+      // is known (401 before 400, as on every path). A valid input lets steps 1, 3 and 4 share one
+      // read: the user, the resource's team and the caller's membership in one statement.
       const parsed = spec.input.safeParse(raw);
+      const sessionUserId = await ctx.sessionUserId();
+      const record = sessionUserId ? await readCaller(client, sessionUserId, parsed.success ? spec.resource(parsed.data) : undefined) : null;
+      if (!record) return failure(401, MESSAGES.unauthenticated);
       if (!parsed.success) return validationFailure(parsed.error);
       const input = parsed.data;
-      const auth = await authorizeMember(client, user.id, spec.resource(input), spec.role);
+      const auth = judgeMember(record, spec.role);
       if (!auth.ok) return auth.failure;
       const caller: MemberCaller = {
         db: client,
         address: await ctx.address(),
         now: ctx.now(),
-        user,
+        user: record.user,
         membership: auth.membership,
         scope: mintTeamScope(auth.membership.teamId),
       };

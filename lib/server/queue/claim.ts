@@ -37,13 +37,17 @@ export async function claimNext(
   input: { projectId: string; skipItemId?: string },
 ): Promise<Claimed | null> {
   if (!roleAtLeast(actor.role, 'reviewer')) throw forbidden(QUEUE_MESSAGES.observerVote);
-  const project = await projectInScope(deps.db, scope, input.projectId);
-  return claimInProject(deps, project.id, actor.userId, input.skipItemId);
+  const claimed = await claimInProject(deps, scope, input.projectId, actor.userId, input.skipItemId);
+  // Nothing handed out: an empty queue, or a project outside the scope (then "not found").
+  if (!claimed) await projectInScope(deps.db, scope, input.projectId);
+  return claimed;
 }
 
 /**
- * The claim itself, for a project already checked against the caller's scope: the lease is taken
- * (see `candidate`) and the caller's other leases in the project are released.
+ * The claim itself: the lease is taken (see `candidate`) and the caller's other leases in the
+ * project are released. The scope is part of the claim statement: a project outside it has no
+ * candidates, so the claim returns null for it (`claimNext` then tells "not found" from an empty
+ * queue, off the hot path).
  * - SQLite: one transaction of two statements; the first is the claim UPDATE, a write, so the
  *   transaction takes the write lock at once (no separate lock statement, see tx.ts) and the choice
  *   and the take are atomic.
@@ -54,18 +58,20 @@ export async function claimNext(
  *   conditions under the lock (READ COMMITTED) and passed over. Of racing reviewers exactly one
  *   gets each item.
  */
-export async function claimInProject(deps: QueueDeps, projectId: string, me: string, skipItemId?: string): Promise<Claimed | null> {
+async function claimInProject(deps: QueueDeps, scope: TeamScope, projectId: string, me: string, skipItemId?: string): Promise<Claimed | null> {
   const { db } = deps;
   const now = nowOf(deps);
   const until = new Date(now.getTime() + QUEUE_TIMING.leaseSeconds * 1000);
   const undoStart = new Date(now.getTime() - QUEUE_TIMING.undoSeconds * 1000);
-  const args: TakeArgs = { projectId, me, skip: skipItemId ?? '', now, until, undoStart };
+  const args: TakeArgs = { projectId, teamId: scope.teamId, me, skip: skipItemId ?? '', now, until, undoStart };
   const id = providerOf(db) === 'postgresql' ? await claimPostgres(db, args) : await claimSqlite(db, args);
   return id === null ? null : { itemId: id, leaseExpiresAt: until };
 }
 
 interface TakeArgs {
   readonly projectId: string;
+  /** the caller's team: the project must belong to it */
+  readonly teamId: string;
   readonly me: string;
   /** item id not to hand out ('' for none) */
   readonly skip: string;
@@ -84,6 +90,7 @@ function candidate(a: TakeArgs): Prisma.Sql {
   return Prisma.sql`
     SELECT q."id" FROM "QueueItem" q
     WHERE q."projectId" = ${a.projectId}
+      AND EXISTS (SELECT 1 FROM "Project" p WHERE p."id" = ${a.projectId} AND p."teamId" = ${a.teamId})
       AND q."state" IN ('open', 'one-vote')
       AND q."id" <> ${a.skip}
       AND (q."leaseUserId" IS NULL OR q."leaseExpiresAt" <= ${a.now} OR q."leaseUserId" = ${a.me})

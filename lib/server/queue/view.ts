@@ -12,10 +12,10 @@ import { roleAtLeast } from '../../domain';
 import type { TeamScope } from '../authz/scope';
 import { forbidden, notFound } from '../authz/errors';
 import { Prisma, type Db } from '../db';
-import { featureMatrixForReading, type FeatureMatrix } from '../fits/data';
+import { dataRevisionKey, featureMatrixForReading, type FeatureMatrix } from '../fits/data';
 import { unpackDetail } from '../fits/standings-store';
 import { pendingChanges } from './apply';
-import { nowOf, projectInScope, type Actor, type ProjectRow, type QueueDeps } from './context';
+import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
 import { type Scaling } from './neighbours';
 import { neighboursOfRow, prefetchNeighbours } from './neighbour-service';
@@ -228,8 +228,7 @@ async function prefetchUpcoming(db: Db, m: FeatureMatrix, scaling: Scaling, now:
 
 /** The item the caller holds the lease on, as the reviewer screen shows it (no votes). */
 export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
-  const project = await projectInScope(deps.db, scope, projectId);
-  return reviewerItemView(deps, project, actor, itemId);
+  return reviewerItemView(deps, scope, actor, projectId, itemId);
 }
 
 interface ItemRow {
@@ -247,23 +246,29 @@ interface ItemRow {
   readonly metadata: string | null;
   readonly currentLabel: string;
   readonly labelRevision: number | bigint;
+  readonly settings: string;
 }
 
 /**
- * `itemForReviewer` for a project already checked against the caller's scope ("next" reads the
- * project once for the claim and the view). One query for the item with its sample; the class
- * list, the standing and the neighbours are then read side by side.
+ * One statement reads the item, its sample and the project's settings, checked against the
+ * caller's scope (an item of another team's project is "not found"); the project's data revision,
+ * which says whether the cached feature matrix is current, is read beside it. The class list, the
+ * standing and the neighbours are then read side by side: two sequential round trips after the
+ * claim.
  */
-export async function reviewerItemView(deps: QueueDeps, project: ProjectRow, actor: Actor, itemId: string): Promise<ReviewItemView> {
+export async function reviewerItemView(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
   const { db } = deps;
-  const settings = readProjectSettings(project.settings);
-  const rows = await db.$queryRaw<ItemRow[]>`
-    SELECT q."id", q."round", q."reasons", q."suspicion", q."leaseUserId", q."leaseExpiresAt", q."sampleId",
-      s."externalId", s."text", s."imageRef", s."metadata", s."currentLabel", s."labelRevision"
-    FROM "QueueItem" q JOIN "Sample" s ON s."id" = q."sampleId"
-    WHERE q."id" = ${itemId} AND q."projectId" = ${project.id}`;
+  const [rows, revisionKey] = await Promise.all([
+    db.$queryRaw<ItemRow[]>`
+      SELECT q."id", q."round", q."reasons", q."suspicion", q."leaseUserId", q."leaseExpiresAt", q."sampleId",
+        s."externalId", s."text", s."imageRef", s."metadata", s."currentLabel", s."labelRevision", p."settings"
+      FROM "QueueItem" q JOIN "Sample" s ON s."id" = q."sampleId" JOIN "Project" p ON p."id" = q."projectId"
+      WHERE q."id" = ${itemId} AND q."projectId" = ${projectId} AND p."teamId" = ${scope.teamId}`,
+    dataRevisionKey(db, projectId),
+  ]);
   const item = rows[0];
   if (!item) throw notFound();
+  const settings = readProjectSettings(item.settings);
   const sample: SampleView = {
     id: item.sampleId,
     externalId: item.externalId,
@@ -273,9 +278,9 @@ export async function reviewerItemView(deps: QueueDeps, project: ProjectRow, act
     currentLabel: item.currentLabel,
     labelRevision: Number(item.labelRevision),
   };
-  const matrix = await featureMatrixForReading(db, project.id);
+  const matrix = await featureMatrixForReading(db, projectId, revisionKey);
   const [classes, standing, neighbours] = await Promise.all([
-    classNames(db, project.id),
+    classNames(db, projectId),
     standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand),
     neighboursOf(db, matrix, item.sampleId, settings.scale),
   ]);

@@ -135,11 +135,15 @@ export async function castVote(
 ): Promise<VoteOutcome> {
   if (!roleAtLeast(actor.role, 'reviewer')) throw forbidden(QUEUE_MESSAGES.observerVote);
   const { db } = deps;
-  const project = await projectInScope(db, scope, input.projectId);
   const me = actor.userId;
-  // Read before the transaction (classes are only ever added), judged inside it in the usual order
-  // of refusals: the less the transaction does, the shorter SQLite's write lock is held.
-  const knownClass = input.decision === 'relabel' ? await classExists(db, project.id, input.label) : true;
+  // The class is looked up beside the project read (its answer is used only once the project is
+  // known to be in scope) and before the transaction (classes are only ever added); it is judged
+  // inside the transaction in the usual order of refusals: the less the transaction does, the
+  // shorter SQLite's write lock is held.
+  const [project, knownClass] = await Promise.all([
+    projectInScope(db, scope, input.projectId),
+    input.decision === 'relabel' ? classExists(db, input.projectId, input.label) : true,
+  ]);
   const recorded = await traced('vote.tx', () => writeTx(db, [{ table: 'QueueItem', id: input.itemId }], async (tx) => {
     const now = nowOf(deps);
     const item = await itemWithVotes(tx, project.id, input.itemId);
