@@ -283,10 +283,17 @@ export function validateData(data: LabelledData): string[] {
   if (ids.length !== n) throw new EngineInputError(`${ids.length} ids for ${n} rows`);
   if (labels.length !== n) throw new EngineInputError(`${labels.length} labels for ${n} rows`);
   const d = X.cols;
-  for (let k = 0; k < X.data.length; k++) {
-    if (!Number.isFinite(X.data[k])) {
-      const i = Math.floor(k / d);
-      throw new EngineInputError(`feature ${(k % d) + 1} of sample "${ids[i]}" (row ${i + 1}) is not finite (${X.data[k]})`);
+  // x·0 is 0 for a finite x and NaN for ±∞ or NaN: one branch-free pass over the matrix finds out
+  // whether there is anything to report (a refit of 100,000 × 256 rows pays this on every run).
+  const values = X.data;
+  let probe = 0;
+  for (let k = 0; k < values.length; k++) probe += values[k] * 0;
+  if (probe !== 0) {
+    for (let k = 0; k < values.length; k++) {
+      if (!Number.isFinite(values[k])) {
+        const i = Math.floor(k / d);
+        throw new EngineInputError(`feature ${(k % d) + 1} of sample "${ids[i]}" (row ${i + 1}) is not finite (${values[k]})`);
+      }
     }
   }
   const seen = new Set<string>();
@@ -352,17 +359,34 @@ function checkCancelled(control: SolverControl): void {
   if (control.signal?.aborted) throw new FitCancelledError();
 }
 
-function warmAlphaFor(warm: WarmStart | undefined, spec: BoundarySpec, ids: readonly string[]): Float64Array | undefined {
-  if (!warm) return undefined;
-  const key = [...spec.negative].sort(compareStrings).join('\u0000');
-  const match = warm.boundaries.find((b) => b.positive === spec.positive && [...b.negative].sort(compareStrings).join('\u0000') === key);
-  if (!match) return undefined;
+/**
+ * Where each current sample sat in the warm start's rows (−1: not there), worked out once per fit
+ * for all boundaries. The common case — the same samples in the same order, a refit after label
+ * changes — is recognised by comparing the id lists and needs no lookup table.
+ */
+function warmRowsFor(warm: WarmStart, ids: readonly string[]): Int32Array {
+  const rows = new Int32Array(ids.length);
+  let same = warm.ids.length === ids.length;
+  for (let i = 0; same && i < ids.length; i++) same = warm.ids[i] === ids[i];
+  if (same) {
+    for (let i = 0; i < ids.length; i++) rows[i] = i;
+    return rows;
+  }
   const prev = new Map<string, number>();
   for (let i = 0; i < warm.ids.length; i++) prev.set(warm.ids[i], i);
-  const alpha = new Float64Array(ids.length);
-  for (let i = 0; i < ids.length; i++) {
-    const j = prev.get(ids[i]);
-    if (j !== undefined) alpha[i] = match.alpha[j];
+  for (let i = 0; i < ids.length; i++) rows[i] = prev.get(ids[i]) ?? -1;
+  return rows;
+}
+
+function warmAlphaFor(warm: InternalSettings['warmStartInternal'], spec: BoundarySpec): Float64Array | undefined {
+  if (!warm) return undefined;
+  const key = [...spec.negative].sort(compareStrings).join('\u0000');
+  const match = warm.start.boundaries.find((b) => b.positive === spec.positive && [...b.negative].sort(compareStrings).join('\u0000') === key);
+  if (!match) return undefined;
+  const alpha = new Float64Array(warm.rows.length);
+  for (let i = 0; i < warm.rows.length; i++) {
+    const j = warm.rows[i];
+    if (j >= 0) alpha[i] = match.alpha[j];
   }
   return alpha;
 }
@@ -400,7 +424,8 @@ function allSeparated(y: Int8Array, decision: Float64Array): boolean {
   return true;
 }
 
-type InternalSettings = ResolvedFitSettings & { readonly warmStartInternal?: WarmStart };
+/** Settings inside one fit: the warm start with each current row's place in it (see warmRowsFor). */
+type InternalSettings = ResolvedFitSettings & { readonly warmStartInternal?: { readonly start: WarmStart; readonly rows: Int32Array } };
 
 function fitBoundary(
   Xp: DenseRows,
@@ -416,7 +441,7 @@ function fitBoundary(
   control.onStage?.({ stage: 'fit', step, of, label: spec.name });
   checkCancelled(control);
   if (s.hard) return fitHardBoundary(problem, spec, s, control);
-  const solution = solveBinary(problem, s, control, { warmStart: warmAlphaFor(s.warmStartInternal, spec, data.ids) });
+  const solution = solveBinary(problem, s, control, { warmStart: warmAlphaFor(s.warmStartInternal, spec) });
   const wNorm = weightNorm(solution);
   let pivots: PivotReport | null = null;
   if (s.pivotCap > 0) {
@@ -580,7 +605,8 @@ export function multiclassFromScores(scores: readonly Float64Array[], classIndex
 export function fitMargins(data: LabelledData, settings: FitSettings, control: EngineControl = {}): FitResult {
   const resolved = resolveSettings(settings);
   const classes = validateData(data);
-  const s: InternalSettings = { ...resolved, warmStartInternal: resolved.hard ? undefined : settings.warmStart };
+  const warm = resolved.hard ? undefined : settings.warmStart;
+  const s: InternalSettings = { ...resolved, warmStartInternal: warm ? { start: warm, rows: warmRowsFor(warm, data.ids) } : undefined };
   const classIndex = new Int32Array(data.labels.length);
   const classPos = new Map(classes.map((c, k) => [c, k]));
   for (let i = 0; i < data.labels.length; i++) classIndex[i] = classPos.get(data.labels[i]) as number;

@@ -73,14 +73,19 @@ export function fitPreprocessor(X: DenseRows, kind: ScaleKind): Preprocessor {
   return { kind, cols: d, mean, scale, zeroVarianceColumns, zeroNormRows: 0 };
 }
 
-/** Transforms rows with a fitted preprocessor; always returns a fresh Float64Array matrix. */
+/**
+ * Transforms rows with a fitted preprocessor: a fresh Float64Array matrix for `standard` and `l2`;
+ * for `none`, the rows as given (not copied — the engine only reads its input rows). A float32 row
+ * read as a double is exact, so the solvers' arithmetic is the same as on a float64 copy, without
+ * the copy (205 MB and a few hundred milliseconds for 100,000 × 256, on every refit of a project
+ * whose L2 scaling the server applied once per matrix).
+ */
 export function applyPreprocessor(p: Preprocessor, X: DenseRows): DenseRows {
   const { rows: n, cols: d, data } = X;
   if (d !== p.cols) throw new EngineInputError(`preprocessor was fitted on ${p.cols} features, got ${d}`);
+  if (p.kind === 'none') return X;
   const out = new Float64Array(n * d);
-  if (p.kind === 'none') {
-    out.set(data);
-  } else if (p.kind === 'l2') {
+  if (p.kind === 'l2') {
     for (let i = 0; i < n; i++) {
       let s = 0;
       for (let j = 0; j < d; j++) s += data[i * d + j] * data[i * d + j];

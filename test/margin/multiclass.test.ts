@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { decisionFunction, fitMargins, type LabelledData } from '@/lib/margin/model';
-import { loadIris } from './datasets';
+import { decisionFunction, fitMargins, warmStartFrom, type LabelledData } from '@/lib/margin/model';
+import { loadIris, standardise } from './datasets';
 
 // Fisher's Iris (fixture, see test/fixtures/README.md): 150 samples, 50 per species (a fact of the data set).
 const iris = loadIris();
@@ -82,5 +82,78 @@ describe('one-vs-rest on Iris', () => {
     again.forEach((f, b) => {
       for (let i = 0; i < 150; i += 7) expect(f[i]).toBeCloseTo(k.boundaries[b].standings.decision[i], 9);
     });
+  });
+});
+
+describe('rows stored as float32 (the server hands the engine its Float32Array feature matrix)', () => {
+  // A float32 value read as a double is exact, so a fit on the float32 rows and one on a float64
+  // copy of them do the same arithmetic: the duals agree to rounding (summation order aside).
+  const f32 = Float32Array.from(data.X.data);
+  const asF32: LabelledData = { ...data, X: { ...data.X, data: f32 } };
+  const asF64: LabelledData = { ...data, X: { ...data.X, data: Float64Array.from(f32) } };
+  for (const solver of ['dcd', 'smo'] as const) {
+    it(`${solver}: the same duals and decision values as on a float64 copy`, () => {
+      const settings = { kernel: { type: 'linear' as const }, C: 1, solver, scale: 'none' as const, seed: 3, pivotCap: 0 };
+      const a = fitMargins(asF32, settings);
+      const b = fitMargins(asF64, settings);
+      expect(a.boundaries.length).toBe(3);
+      a.boundaries.forEach((ba, k) => {
+        const bb = b.boundaries[k];
+        expect(ba.solution.iterations).toBe(bb.solution.iterations);
+        ba.solution.alpha.forEach((v, i) => expect(v).toBeCloseTo(bb.solution.alpha[i], 12));
+        ba.standings.decision.forEach((v, i) => expect(v).toBeCloseTo(bb.standings.decision[i], 10));
+      });
+    });
+  }
+});
+
+describe('warm start matched by sample id', () => {
+  // A warm start carries each boundary's duals keyed by sample id. Started from the optimum of the
+  // same problem with its rows in another order, the solver must stop at once (its first pass finds
+  // the optimality conditions met) — which it can only do if every row got its own dual back.
+  // Rows standardised once, scaling 'none': a scaling fitted per fit would change with the rows.
+  const z: LabelledData = { ...data, X: standardise(data.X) };
+  const settings = { kernel: { type: 'linear' as const }, C: 1, solver: 'dcd' as const, scale: 'none' as const, seed: 5, pivotCap: 0, tol: 1e-4 };
+  const first = fitMargins(z, settings);
+  const warm = warmStartFrom(first);
+  const rowsOf = (order: readonly number[]): LabelledData => ({
+    ids: order.map((i) => z.ids[i]),
+    labels: order.map((i) => z.labels[i]),
+    X: { rows: order.length, cols: z.X.cols, data: Float64Array.from(order.flatMap((i) => Array.from(z.X.data.subarray(i * z.X.cols, (i + 1) * z.X.cols)))) },
+  });
+  const iterations = (r: ReturnType<typeof fitMargins>) => r.boundaries.map((b) => b.solution.iterations);
+
+  it('same rows in reverse order: the solver stops at once and every row keeps its dual', () => {
+    const order = Array.from({ length: data.ids.length }, (_, i) => data.ids.length - 1 - i);
+    const reversed = rowsOf(order);
+    const cold = fitMargins(reversed, settings);
+    const again = fitMargins(reversed, { ...settings, warmStart: warm });
+    expect(Math.max(...iterations(again))).toBeLessThanOrEqual(1);
+    expect(Math.min(...iterations(cold))).toBeGreaterThan(5);
+    for (let b = 0; b < 3; b++) {
+      order.forEach((i, r) => expect(again.boundaries[b].solution.alpha[r]).toBeCloseTo(first.boundaries[b].solution.alpha[i], 3));
+    }
+  });
+
+  it('the same start handed over positionally (ids reversed too) does not stop at once', () => {
+    // The control case: ids that do not follow their rows defeat the warm start.
+    const order = Array.from({ length: data.ids.length }, (_, i) => data.ids.length - 1 - i);
+    const mislabelled = { ...rowsOf(order), ids: data.ids };
+    const again = fitMargins(mislabelled, { ...settings, warmStart: warm });
+    expect(Math.max(...iterations(again))).toBeGreaterThan(1);
+  });
+
+  it('rows matched by id across different sample sets: a dropped row, and an added row starting at 0', () => {
+    // Row r is outside every margin with α = 0 in every boundary, so it does not shape any boundary:
+    // the optimum without it is the optimum with it, restricted; and adding it back with α = 0 is
+    // again optimal. Both warm starts must therefore stop at once.
+    const r = first.boundaries[0].solution.alpha.findIndex((_, i) => first.boundaries.every((b) => b.solution.alpha[i] === 0 && b.y[i] * b.solution.decision[i] > 1.5));
+    expect(r).toBeGreaterThanOrEqual(0);
+    const fewer = rowsOf(data.ids.map((_, i) => i).filter((i) => i !== r));
+    const dropped = fitMargins(fewer, { ...settings, warmStart: warm });
+    expect(Math.max(...iterations(dropped))).toBeLessThanOrEqual(1);
+    const added = fitMargins(z, { ...settings, warmStart: warmStartFrom(dropped) });
+    expect(Math.max(...iterations(added))).toBeLessThanOrEqual(1);
+    expect(added.boundaries.map((b) => b.solution.alpha[r])).toEqual([0, 0, 0]);
   });
 });
