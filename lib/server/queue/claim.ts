@@ -80,39 +80,47 @@ interface TakeArgs {
   readonly undoStart: Date;
 }
 
-/**
- * The item to hand out: the caller's own live lease first (renewed by the claim), else the first
- * free item awaiting votes in the queue's order. The candidate conditions are those of the module
- * comment; a live lease of the caller's own is kept even while another reviewer's vote on it is
- * inside its undo window (the caller got it back by an undo, or held it before that vote).
- */
-function candidate(a: TakeArgs): Prisma.Sql {
-  return Prisma.sql`
-    SELECT q."id" FROM "QueueItem" q
-    WHERE q."projectId" = ${a.projectId}
+/** Conditions every handed-out item meets: in the caller's project (of the caller's team), awaiting votes, not skipped, not voted on by the caller. */
+function handable(a: TakeArgs): Prisma.Sql {
+  return Prisma.sql`q."projectId" = ${a.projectId}
       AND EXISTS (SELECT 1 FROM "Project" p WHERE p."id" = ${a.projectId} AND p."teamId" = ${a.teamId})
-      AND q."state" IN ('open', 'one-vote')
       AND q."id" <> ${a.skip}
-      AND (q."leaseUserId" IS NULL OR q."leaseExpiresAt" <= ${a.now} OR q."leaseUserId" = ${a.me})
-      AND NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."userId" = ${a.me})
-      AND (
-        (q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now})
-        OR NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."createdAt" > ${a.undoStart})
-      )
-    ORDER BY
-      CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN 0 ELSE 1 END,
-      CASE WHEN q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} THEN q."leaseExpiresAt" END DESC,
-      q."state" ASC,
-      q."suspicion" DESC,
-      q."id" ASC
-    LIMIT 1`;
+      AND NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."userId" = ${a.me})`;
+}
+
+/**
+ * The item to hand out, as one expression: the caller's own live lease first (renewed by the
+ * claim; kept even while another reviewer's vote on it is inside its undo window — the caller got
+ * it back by an undo, or held it before that vote), else the first free one-vote item, else the
+ * first free open item, each in suspicion order (highest first, ties by id). Free: no holder or an
+ * expired lease, and no vote inside its undo window.
+ *
+ * Three sub-selects under COALESCE, each a short walk of an index with LIMIT 1 — (leaseUserId) for
+ * the own lease, (projectId, state, suspicion) for the others — evaluated left to right only as
+ * far as needed, on SQLite and PostgreSQL alike. (One ORDER BY over all of them, with the own
+ * lease first, had to look at every item awaiting votes on every claim: 5 ms per claim on SQLite
+ * and 10 ms on PostgreSQL with 2,000 items, measured.) `lock` is PostgreSQL's row lock, see
+ * claimPostgres.
+ */
+function candidate(a: TakeArgs, lock: Prisma.Sql): Prisma.Sql {
+  const firstFree = (state: 'one-vote' | 'open') => Prisma.sql`(SELECT q."id" FROM "QueueItem" q
+      WHERE ${handable(a)} AND q."state" = ${state}
+        AND (q."leaseUserId" IS NULL OR q."leaseExpiresAt" <= ${a.now})
+        AND NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."createdAt" > ${a.undoStart})
+      ORDER BY q."suspicion" DESC, q."id" ASC LIMIT 1 ${lock})`;
+  return Prisma.sql`COALESCE(
+    (SELECT q."id" FROM "QueueItem" q
+      WHERE q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} AND q."state" IN ('open', 'one-vote') AND ${handable(a)}
+      ORDER BY q."leaseExpiresAt" DESC LIMIT 1 ${lock}),
+    ${firstFree('one-vote')},
+    ${firstFree('open')})`;
 }
 
 async function claimSqlite(db: Db, a: TakeArgs): Promise<string | null> {
   return writeTx(db, [], async (tx) => {
     const rows = await tx.$queryRaw<{ id: string }[]>`
       UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${new Date()}
-      WHERE "id" = (${candidate(a)})
+      WHERE "id" = ${candidate(a, Prisma.empty)}
       RETURNING "id"`;
     const id = rows[0]?.id ?? null;
     // One lease per reviewer: the item skipped and any other (stale) lease of mine in the project go.
@@ -130,7 +138,7 @@ async function claimPostgres(db: Db, a: TakeArgs): Promise<string | null> {
     try {
       // Data-modifying CTEs run once each, on one snapshot; `released` never touches the taken row.
       const rows = await db.$queryRaw<{ id: string }[]>`
-        WITH picked AS (${candidate(a)} FOR UPDATE SKIP LOCKED),
+        WITH picked AS (SELECT "id" FROM (SELECT ${candidate(a, Prisma.sql`FOR UPDATE SKIP LOCKED`)} AS "id") c WHERE "id" IS NOT NULL),
         taken AS (
           UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${updatedAt}
           WHERE "id" IN (SELECT "id" FROM picked)
