@@ -11,7 +11,8 @@ import { processProject, resetFitMemory, runClaimedFit, type ProcessOutcome } fr
 import { decodeModel } from '@/lib/server/fits/model-codec';
 import { inlineStandingsWriter, workerStandingsWriter } from '@/lib/server/fits/standings-writer';
 import { castVote } from '@/lib/server/queue/vote';
-import { createTestDatabase, type TestDatabase } from './db-harness';
+import { createTestDatabase, TEST_PROVIDER, type TestDatabase } from './db-harness';
+import { PRUNE_RANGE_SQL } from '@/lib/server/fits/standings-keys';
 import { createQueueFixture, type QueueFixture } from './queue-fixtures';
 
 let t: TestDatabase;
@@ -348,6 +349,38 @@ describe('standings writers', () => {
       );
     }
     expect([...byWriter[1].entries()].sort()).toEqual([...byWriter[0].entries()].sort());
+  });
+});
+
+describe('pruning old standings', () => {
+  // Standings are keyed `<fitId>:<row>` (lib/server/fits/standings-keys.ts) and pruned by key range
+  // alone; these checks hold both writers to "exactly the named fits' rows go".
+  it('both writers delete every standing of the named fits, legacy keys included, and no other fit\'s', async () => {
+    for (const writer of [inlineStandingsWriter(db), workerStandingsWriter(t.config)]) {
+      const f = await twoClassProject();
+      const fits: string[] = [];
+      for (let k = 0; k < 3; k++) {
+        await queueFit(f, await revision0(f));
+        const out = await processProject(db, f.projectId, { engine: inlineEngine, standingsWriter: writer, followUp: false });
+        expect(out?.status).toBe('done');
+        fits.push(out?.fitId as string);
+      }
+      // A row under a key of an older format (a plain cuid) belongs to the middle fit too.
+      const sample = await db.sample.findFirstOrThrow({ where: { projectId: f.projectId }, select: { id: true } });
+      await db.standing.deleteMany({ where: { fitId: fits[1], sampleId: sample.id } });
+      await db.standing.create({ data: { id: 'legacyrowkey00000000000001', fitId: fits[1], sampleId: sample.id, margin: 1, distance: 1, slack: 0, alpha: 0, svKind: 'none', flags: '', suspicion: 0, predicted: 'a' } });
+      const before = await Promise.all(fits.map((id) => db.standing.count({ where: { fitId: id } })));
+      expect(before).toEqual([80, 80, 80]);
+      expect(await writer.prune([fits[1]])).toBe(80);
+      const after = await Promise.all(fits.map((id) => db.standing.count({ where: { fitId: id } })));
+      expect(after).toEqual([80, 0, 80]);
+    }
+  });
+
+  it.runIf(TEST_PROVIDER === 'sqlite')('on SQLite a range statement walks the primary key, not the rows of the fit', async () => {
+    // SQLite plans the statement once; with a fitId condition it chose the (fitId, suspicion) index.
+    const plan = await db.$queryRawUnsafe<{ detail: string }[]>(`EXPLAIN QUERY PLAN ${PRUNE_RANGE_SQL.sqlite}`, 'a', 'b');
+    expect(plan.map((p) => p.detail).join(' | ')).toMatch(/^SEARCH Standing USING (COVERING )?INDEX sqlite_autoindex_Standing_1 \(id>\? AND id<\?\)$/);
   });
 });
 

@@ -12,6 +12,7 @@
  */
 import type { Db, DbTx } from '../db';
 import { serialWrite, type Provider } from '../queue/tx';
+import { standingId } from './standings-keys';
 
 export interface StandingRow {
   readonly sampleId: string;
@@ -114,10 +115,6 @@ function pause(provider: Provider): Promise<void> {
   return new Promise<void>((resolve) => (provider === 'sqlite' ? setTimeout(resolve, 3) : setImmediate(resolve)));
 }
 
-/** The primary key of a fit's i-th standing. */
-export function standingId(fitId: string, i: number): string {
-  return `${fitId}:${i.toString().padStart(8, '0')}`;
-}
 
 /** Standings are kept for this many of a project's newest completed fits (plus its newest full pass). */
 export const STANDINGS_RETENTION = 5;

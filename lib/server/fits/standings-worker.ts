@@ -23,6 +23,7 @@ import pg from 'pg';
 import { flagNames, supportKindName } from '../../margin/standings';
 import { backgroundTurn, GATE_BACKGROUND_BUSY } from '../sqlite-gate';
 import { lowerThreadPriority } from '../thread-priority';
+import { PRUNE_RANGE_SQL, standingId } from './standings-keys';
 
 export interface StandingColumns {
   readonly sampleIds: readonly string[];
@@ -97,7 +98,6 @@ function finite(v: number): number {
   return v;
 }
 
-const standingId = (fitId: string, i: number) => `${fitId}:${i.toString().padStart(8, '0')}`;
 const sleep = (ms: number) => new Promise<void>((r) => setTimeout(r, ms));
 
 /** A short breather after every batch. */
@@ -179,13 +179,13 @@ async function prune(fitIds: readonly string[]): Promise<number> {
   let removed = 0;
   for (const fitId of fitIds) {
     for (let lo = 0; ; lo += BATCH) {
-      const args = [fitId, standingId(fitId, lo), standingId(fitId, lo + BATCH)];
+      const args = [standingId(fitId, lo), standingId(fitId, lo + BATCH)];
       let changed: number;
       if (config.provider === 'sqlite') {
-        const remove = openSqlite().prepare('DELETE FROM "Standing" WHERE "fitId" = ? AND "id" >= ? AND "id" < ?');
+        const remove = openSqlite().prepare(PRUNE_RANGE_SQL.sqlite);
         changed = (await turn(() => remove.run(...args))).changes;
       } else {
-        changed = (await openPool().query('DELETE FROM "Standing" WHERE "fitId" = $1 AND "id" >= $2 AND "id" < $3', args)).rowCount ?? 0;
+        changed = (await openPool().query(PRUNE_RANGE_SQL.postgresql, args)).rowCount ?? 0;
       }
       removed += changed;
       await pause();

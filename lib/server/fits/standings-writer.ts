@@ -16,7 +16,8 @@ import type { DatabaseConfig } from '../env';
 import { providerOf, serialWrite, writerGate } from '../queue/tx';
 import { startTsWorker } from '../../margin/worker-client';
 import type { StandingColumns } from './standings-worker';
-import { insertStandings, standingId, type StandingRow } from './standings-store';
+import { insertStandings, type StandingRow } from './standings-store';
+import { standingId } from './standings-keys';
 
 export type { StandingColumns } from './standings-worker';
 
@@ -56,7 +57,8 @@ export function inlineStandingsWriter(db: Db): StandingsWriter {
       let removed = 0;
       for (const fitId of fitIds) {
         for (let lo = 0; ; lo += 500) {
-          const r = await serialWrite(db, () => db.standing.deleteMany({ where: { fitId, id: { gte: standingId(fitId, lo), lt: standingId(fitId, lo + 500) } } }));
+          // By key range alone (standings-keys.ts): the range holds this fit's rows only.
+          const r = await serialWrite(db, () => db.standing.deleteMany({ where: { id: { gte: standingId(fitId, lo), lt: standingId(fitId, lo + 500) } } }));
           removed += r.count;
           await new Promise<void>((resolve) => setTimeout(resolve, 2));
           if (r.count === 0) break;

@@ -123,9 +123,11 @@ async function sqliteTurn<T>(fn: () => Promise<T>, serverThread: boolean): Promi
   sqliteTail = new Promise<void>((r) => (release = r));
   const w0 = performance.now();
   await previous;
+  const wPrevious = performance.now();
   if (serverThread) await backgroundIdle(writerGate());
   const w1 = performance.now();
   record('sqlite.mutexWait', w1 - w0);
+  record('sqlite.mutexWait.background', w1 - wPrevious);
   try {
     return await fn();
   } finally {
