@@ -10,6 +10,7 @@ import { inlineEngine } from '@/lib/server/fits/engine';
 import { JobSystemFitQueue, startFitJobWorker } from '@/lib/server/fits/job-system';
 import { processProject, type FitLease } from '@/lib/server/fits/run-fit';
 import { JOB_QUEUES, JOB_SCHEMA, sendRefit, startJobSystem } from '@/lib/server/jobs/boss';
+import { announceJob, listenForJobs } from '@/lib/server/jobs/wake';
 import { createTestDatabase, TEST_PROVIDER, type TestDatabase } from './db-harness';
 import { createQueueFixture, manualClock, type QueueFixture } from './queue-fixtures';
 
@@ -129,4 +130,63 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('refit jobs on pg-boss', () => {
       expect(await db.standing.count({ where: { fit: { projectId: f.projectId } } })).toBe(40 + 10 * k);
     }
   }, 60_000);
+});
+
+describe.skipIf(TEST_PROVIDER !== 'postgresql')('announced jobs (lib/server/jobs/wake.ts)', () => {
+  it('a listener hears the queue of every job sent', async () => {
+    const sender = await startJobSystem({ connectionString: t.url, role: 'app' });
+    const heard: string[] = [];
+    let resolveHeard: () => void = () => {};
+    const twoHeard = new Promise<void>((r) => (resolveHeard = r));
+    const listener = listenForJobs(t.url, (queue) => {
+      heard.push(queue);
+      if (heard.length === 2) resolveHeard();
+    });
+    try {
+      // The LISTEN is in place once a notification sent after it arrives; send until one does.
+      const f = await project();
+      for (let k = 0; heard.length === 0 && k < 50; k++) {
+        await announceJob(sender, JOB_QUEUES.import);
+        await new Promise((r) => setTimeout(r, 100));
+      }
+      heard.length = 0;
+      await sendRefit(sender, { projectId: f.projectId });
+      await announceJob(sender, JOB_QUEUES.import);
+      await twoHeard;
+      expect(heard).toEqual([JOB_QUEUES.refit, JOB_QUEUES.import]);
+    } finally {
+      await listener.stop();
+      await sender.stop({ graceful: true, wait: true });
+    }
+  });
+
+  it('a worker that polls only every 60 s takes an announced refit at once', async () => {
+    const sender = await startJobSystem({ connectionString: t.url, role: 'app' });
+    const boss = await startJobSystem({ connectionString: t.url, role: 'worker' });
+    const f = await project();
+    await queueRevision0(f);
+    const worker = await startFitJobWorker({
+      db,
+      boss,
+      engines: [inlineEngine],
+      lease: { workerId: 'woken', heartbeatMs: 500, staleMs: 10_000 },
+      bootstrap: false,
+      sweepMs: 600_000,
+      pollingIntervalSeconds: 60,
+      wakeUrl: t.url,
+    });
+    try {
+      // Let the worker's first poll (at start) pass and its listener connect, then send the job:
+      // only the announcement can bring the worker to it before the next poll in 60 s.
+      await new Promise((r) => setTimeout(r, 1500));
+      await new JobSystemFitQueue(db, sender).enqueue({ projectId: f.projectId, revisionNumber: 0 });
+      await new JobSystemFitQueue(db, sender).idle(f.projectId);
+      const fits = await db.fit.findMany({ where: { projectId: f.projectId }, select: { status: true, workerId: true } });
+      expect(fits).toEqual([{ status: 'done', workerId: 'woken' }]);
+    } finally {
+      await worker.stop();
+      await boss.stop({ graceful: true, wait: true });
+      await sender.stop({ graceful: true, wait: true });
+    }
+  }, 30_000);
 });

@@ -15,6 +15,7 @@
 import type PgBoss from 'pg-boss';
 import type { Db } from '../db';
 import { JOB_QUEUES, sendRefit, type RefitJobData } from '../jobs/boss';
+import { wakeWorkersOnJob } from '../jobs/wake';
 import type { EngineRunner } from './engine';
 import { queueFirstFits } from './enqueue';
 import type { FitJobQueue, FitRequest } from './jobs';
@@ -63,6 +64,8 @@ export interface FitJobWorkerOptions {
   readonly cancelCheckMs?: number;
   /** pg-boss polling interval in seconds (default 0.5, pg-boss's minimum) */
   readonly pollingIntervalSeconds?: number;
+  /** the database URL to listen on for announced jobs (lib/server/jobs/wake.ts); without it, polling only */
+  readonly wakeUrl?: string;
   readonly followUpQuietMs?: number;
   readonly quickPassCells?: number;
   readonly standingsWriter?: StandingsWriter;
@@ -91,6 +94,7 @@ export async function startFitJobWorker(options: FitJobWorkerOptions): Promise<F
       }),
     );
   }
+  const wake = options.wakeUrl ? wakeWorkersOnJob(options.wakeUrl, boss, JOB_QUEUES.refit, workIds, (line) => log(line)) : null;
   let sweeping: Promise<void> | null = null;
   const sweepTimer = setInterval(() => {
     sweeping ??= sweep(options).finally(() => {
@@ -102,6 +106,7 @@ export async function startFitJobWorker(options: FitJobWorkerOptions): Promise<F
   return {
     async stop() {
       clearInterval(sweepTimer);
+      await wake?.stop();
       if (sweeping) await sweeping;
       for (const id of workIds) await boss.offWork({ id });
     },

@@ -29,6 +29,7 @@ import { IMPORT_MODES } from '../../domain-data';
 import { mintTeamScope } from '../authz/scope';
 import type { Db, DbTx } from '../db';
 import { JOB_QUEUES, JOB_SCHEMA, sendImport, sendRefit, type ImportJobData } from '../jobs/boss';
+import { wakeWorkersOnJob } from '../jobs/wake';
 import { importSamples, type ImportOutcome, type ImportProgress } from './index';
 import { ImportBatchLost, type HistoryRow, type ImportRecorder } from './record';
 
@@ -73,6 +74,8 @@ export interface ImportJobWorkerOptions {
   readonly progressMs?: number;
   /** pg-boss polling interval in seconds (default 0.5, pg-boss's minimum) */
   readonly pollingIntervalSeconds?: number;
+  /** the database URL to listen on for announced jobs (lib/server/jobs/wake.ts); without it, polling only */
+  readonly wakeUrl?: string;
   /** rows per INSERT statement (default: the import's own) */
   readonly batchSize?: number;
 }
@@ -103,6 +106,7 @@ export async function startImportJobWorker(options: ImportJobWorkerOptions): Pro
       ),
     );
   }
+  const wake = options.wakeUrl ? wakeWorkersOnJob(options.wakeUrl, boss, JOB_QUEUES.import, workIds, (line) => options.log?.(line)) : null;
   let sweeping: Promise<void> | null = null;
   const sweepTimer = setInterval(() => {
     sweeping ??= sweepImports(options)
@@ -117,6 +121,7 @@ export async function startImportJobWorker(options: ImportJobWorkerOptions): Pro
     if (stopped) return;
     stopped = true;
     clearInterval(sweepTimer);
+    await wake?.stop();
     if (sweeping) await sweeping;
     for (const id of workIds) await boss.offWork({ id }).catch(() => undefined);
   };

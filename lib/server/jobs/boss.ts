@@ -14,10 +14,12 @@
  *   queue for the others.
  * - `import` (policy `standard`): one job per staged import batch (lib/server/import/job.ts).
  *
- * App instances only send jobs (no maintenance, no polling); `npm run worker` processes run them
+ * Sending a job also announces it (NOTIFY, lib/server/jobs/wake.ts) so that a polling worker takes
+ * it at once. App instances only send jobs (no maintenance, no polling); `npm run worker` processes run them
  * and pg-boss's maintenance (expiry, retries, archiving) — any number of them, on any machines.
  */
 import PgBoss from 'pg-boss';
+import { announceJob } from './wake';
 
 export const JOB_QUEUES = { refit: 'refit', import: 'import' } as const;
 export type JobQueueName = (typeof JOB_QUEUES)[keyof typeof JOB_QUEUES];
@@ -91,13 +93,17 @@ export interface ImportJobData {
 
 /** Sends a refit job for the project; null when one is already waiting (coalesced). */
 export async function sendRefit(boss: PgBoss, data: RefitJobData, options: { startAfterSeconds?: number } = {}): Promise<string | null> {
-  return boss.send(JOB_QUEUES.refit, { ...data }, {
+  const id = await boss.send(JOB_QUEUES.refit, { ...data }, {
     singletonKey: data.projectId,
     ...(options.startAfterSeconds ? { startAfter: options.startAfterSeconds } : {}),
   });
+  if (id !== null && !options.startAfterSeconds) await announceJob(boss, JOB_QUEUES.refit);
+  return id;
 }
 
 /** Sends the job that applies a staged import batch. */
 export async function sendImport(boss: PgBoss, data: ImportJobData): Promise<string | null> {
-  return boss.send(JOB_QUEUES.import, { ...data }, { singletonKey: data.batchId });
+  const id = await boss.send(JOB_QUEUES.import, { ...data }, { singletonKey: data.batchId });
+  if (id !== null) await announceJob(boss, JOB_QUEUES.import);
+  return id;
 }

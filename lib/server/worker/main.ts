@@ -60,9 +60,10 @@ export async function startWorkerProcess(options: { log?: WorkerLog } = {}): Pro
     standingsWriter: workerStandingsWriter(e.database),
     lease: { workerId, heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs },
     sweepMs: Math.max(1000, Math.floor(leaseMs / 3)),
+    wakeUrl: e.database.url,
     log,
   });
-  await startImportJobWorker({ db: defaultDb(), boss, workerId, lease: { heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs }, log });
+  await startImportJobWorker({ db: defaultDb(), boss, workerId, lease: { heartbeatMs: Math.max(1000, Math.floor(leaseMs / 6)), staleMs: leaseMs }, wakeUrl: e.database.url, log });
   log('worker started', { concurrency: e.BORDERLINE_WORKER_CONCURRENCY, leaseSeconds: e.BORDERLINE_FIT_LEASE_SECONDS });
   // In the background: jobs are taken from now on; a refit of a project being read shares the read.
   const warmStart = performance.now();
