@@ -81,7 +81,7 @@ interface TakeArgs {
 }
 
 /** Conditions every handed-out item meets: in the caller's project (of the caller's team), awaiting votes, not skipped, not voted on by the caller. */
-function handable(a: TakeArgs): Prisma.Sql {
+function eligible(a: TakeArgs): Prisma.Sql {
   return Prisma.sql`q."projectId" = ${a.projectId}
       AND EXISTS (SELECT 1 FROM "Project" p WHERE p."id" = ${a.projectId} AND p."teamId" = ${a.teamId})
       AND q."id" <> ${a.skip}
@@ -104,13 +104,13 @@ function handable(a: TakeArgs): Prisma.Sql {
  */
 function candidate(a: TakeArgs, lock: Prisma.Sql): Prisma.Sql {
   const firstFree = (state: 'one-vote' | 'open') => Prisma.sql`(SELECT q."id" FROM "QueueItem" q
-      WHERE ${handable(a)} AND q."state" = ${state}
+      WHERE ${eligible(a)} AND q."state" = ${state}
         AND (q."leaseUserId" IS NULL OR q."leaseExpiresAt" <= ${a.now})
         AND NOT EXISTS (SELECT 1 FROM "Vote" v WHERE v."queueItemId" = q."id" AND v."createdAt" > ${a.undoStart})
       ORDER BY q."suspicion" DESC, q."id" ASC LIMIT 1 ${lock})`;
   return Prisma.sql`COALESCE(
     (SELECT q."id" FROM "QueueItem" q
-      WHERE q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} AND q."state" IN ('open', 'one-vote') AND ${handable(a)}
+      WHERE q."leaseUserId" = ${a.me} AND q."leaseExpiresAt" > ${a.now} AND q."state" IN ('open', 'one-vote') AND ${eligible(a)}
       ORDER BY q."leaseExpiresAt" DESC LIMIT 1 ${lock}),
     ${firstFree('one-vote')},
     ${firstFree('open')})`;
