@@ -67,7 +67,7 @@ describe(`migration failures on ${TEST_PROVIDER}`, () => {
     expect((error as MigrationError).message).toBe(
       `Migration 0099_broken failed: ${BROKEN_REASON}. Nothing from this run was applied; the database is as it was.`,
     );
-    // 0002 to 0006 were pending too and succeeded inside the run; they must be gone with the rest.
+    // 0002 to 0007 were pending too and succeeded inside the run; they must be gone with the rest.
     expect(await snapshot(t)).toEqual(before);
     const status = await migrationStatus(t.config, { migrationsDir: broken.dir });
     expect(status.entries.map((e) => `${e.name}:${e.state}`)).toEqual([
@@ -77,6 +77,7 @@ describe(`migration failures on ${TEST_PROVIDER}`, () => {
       '0004_split_decision_note:pending',
       '0005_queue_lease_index:pending',
       '0006_standing_drop_suspicion_index:pending',
+      '0007_sample_project_id_index:pending',
       '0099_broken:pending',
     ]);
 
@@ -87,6 +88,7 @@ describe(`migration failures on ${TEST_PROVIDER}`, () => {
       '0004_split_decision_note',
       '0005_queue_lease_index',
       '0006_standing_drop_suspicion_index',
+      '0007_sample_project_id_index',
     ]);
     expect(await t.client().user.count()).toBe(1);
   });
@@ -170,7 +172,7 @@ describe(`migration failures on ${TEST_PROVIDER}`, () => {
 
     const runs = await Promise.all([1, 2, 3].map(() => runCli(t.url, ['--migrations-dir', withSlow.dir])));
     for (const run of runs) expect({ code: run.code, stderr: run.stderr }).toEqual({ code: 0, stderr: '' });
-    const appliers = runs.filter((r) => /Applied 7 migration\(s\)/.test(r.stdout));
+    const appliers = runs.filter((r) => /Applied 8 migration\(s\)/.test(r.stdout));
     const waiters = runs.filter((r) => /is up to date\./.test(r.stdout));
     expect(appliers).toHaveLength(1);
     expect(waiters).toHaveLength(2);
@@ -184,6 +186,7 @@ describe(`migration failures on ${TEST_PROVIDER}`, () => {
       '0004_split_decision_note',
       '0005_queue_lease_index',
       '0006_standing_drop_suspicion_index',
+      '0007_sample_project_id_index',
       '0099_slow',
     ]);
     const slow = await db.$queryRawUnsafe<{ n: unknown }[]>('SELECT "n" FROM "Slow"');
