@@ -143,13 +143,8 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('announced jobs (lib/server/jobs
       if (heard.length === 2) resolveHeard();
     });
     try {
-      // The LISTEN is in place once a notification sent after it arrives; send until one does.
       const f = await project();
-      for (let k = 0; heard.length === 0 && k < 50; k++) {
-        await announceJob(sender, JOB_QUEUES.import);
-        await new Promise((r) => setTimeout(r, 100));
-      }
-      heard.length = 0;
+      await listener.ready;
       await sendRefit(sender, { projectId: f.projectId });
       await announceJob(sender, JOB_QUEUES.import);
       await twoHeard;
@@ -163,6 +158,9 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('announced jobs (lib/server/jobs
   it('a worker that polls only every 60 s takes an announced refit at once', async () => {
     const sender = await startJobSystem({ connectionString: t.url, role: 'app' });
     const boss = await startJobSystem({ connectionString: t.url, role: 'worker' });
+    // One announcement wakes the worker for one fetch; a refit job an earlier test left waiting
+    // (the coalescing test's) would take that fetch, so the queue starts empty here.
+    await db.$executeRawUnsafe(`DELETE FROM ${JOB_SCHEMA}.job WHERE name = $1 AND state = 'created'`, JOB_QUEUES.refit);
     const f = await project();
     await queueRevision0(f);
     const worker = await startFitJobWorker({
@@ -176,9 +174,9 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('announced jobs (lib/server/jobs
       wakeUrl: t.url,
     });
     try {
-      // Let the worker's first poll (at start) pass and its listener connect, then send the job:
-      // only the announcement can bring the worker to it before the next poll in 60 s.
-      await new Promise((r) => setTimeout(r, 1500));
+      // startFitJobWorker returns once its listener is in place. The worker's first poll (at
+      // start) may not have found the job: only the announcement can bring the worker to it
+      // before the next poll in 60 s (pg-boss skips the wait when notified during a fetch).
       await new JobSystemFitQueue(db, sender).enqueue({ projectId: f.projectId, revisionNumber: 0 });
       await new JobSystemFitQueue(db, sender).idle(f.projectId);
       const fits = await db.fit.findMany({ where: { projectId: f.projectId }, select: { status: true, workerId: true } });

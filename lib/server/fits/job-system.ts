@@ -95,6 +95,8 @@ export async function startFitJobWorker(options: FitJobWorkerOptions): Promise<F
     );
   }
   const wake = options.wakeUrl ? wakeWorkersOnJob(options.wakeUrl, boss, JOB_QUEUES.refit, workIds, (line) => log(line)) : null;
+  // Jobs sent from now on are announced to this worker (or, if the listener could not connect, found by polling).
+  await wake?.ready;
   let sweeping: Promise<void> | null = null;
   const sweepTimer = setInterval(() => {
     sweeping ??= sweep(options).finally(() => {

@@ -107,6 +107,7 @@ export async function startImportJobWorker(options: ImportJobWorkerOptions): Pro
     );
   }
   const wake = options.wakeUrl ? wakeWorkersOnJob(options.wakeUrl, boss, JOB_QUEUES.import, workIds, (line) => options.log?.(line)) : null;
+  await wake?.ready;
   let sweeping: Promise<void> | null = null;
   const sweepTimer = setInterval(() => {
     sweeping ??= sweepImports(options)

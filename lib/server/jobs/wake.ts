@@ -23,6 +23,8 @@ export async function announceJob(boss: PgBoss, queue: JobQueueName): Promise<vo
 }
 
 export interface JobListener {
+  /** Settles once the first connection attempt has ended: listening, or failed (then retrying). */
+  readonly ready: Promise<void>;
   stop(): Promise<void>;
 }
 
@@ -34,6 +36,8 @@ export function listenForJobs(connectionString: string, onJob: (queue: string) =
   let stopped = false;
   let client: pg.Client | null = null;
   let retry: NodeJS.Timeout | null = null;
+  let settleReady: () => void = () => {};
+  const ready = new Promise<void>((resolve) => (settleReady = resolve));
   const connect = async (): Promise<void> => {
     if (stopped) return;
     const c = new pg.Client({ connectionString, application_name: 'borderline-wake' });
@@ -66,10 +70,13 @@ export function listenForJobs(connectionString: string, onJob: (queue: string) =
     } catch (e) {
       options.log?.(`job wake-up listener could not connect: ${e instanceof Error ? e.message : String(e)}`);
       again();
+    } finally {
+      settleReady();
     }
   };
   void connect();
   return {
+    ready,
     async stop() {
       stopped = true;
       if (retry) clearTimeout(retry);
