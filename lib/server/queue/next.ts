@@ -7,11 +7,11 @@
 import type { TeamScope } from '../authz/scope';
 import { claimNext } from './claim';
 import type { Actor, QueueDeps } from './context';
-import { reviewerItemView, type ReviewItemView } from './view';
+import { itemForReviewer, type ReviewItemView } from './view';
 import { traced } from './trace';
 
 export async function nextForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, input: { projectId: string; skipItemId?: string }): Promise<ReviewItemView | null> {
   const claimed = await traced('next.claim', () => claimNext(deps, scope, actor, input));
   if (!claimed) return null;
-  return traced('next.view', () => reviewerItemView(deps, scope, actor, input.projectId, claimed.itemId));
+  return traced('next.view', () => itemForReviewer(deps, scope, actor, input.projectId, claimed.itemId));
 }

@@ -226,11 +226,6 @@ async function prefetchUpcoming(db: Db, m: FeatureMatrix, scaling: Scaling, now:
   prefetchNeighbours(m, scaling, rows);
 }
 
-/** The item the caller holds the lease on, as the reviewer screen shows it (no votes). */
-export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
-  return reviewerItemView(deps, scope, actor, projectId, itemId);
-}
-
 interface ItemRow {
   readonly id: string;
   readonly round: number | bigint;
@@ -250,13 +245,15 @@ interface ItemRow {
 }
 
 /**
+ * The item the caller holds the lease on, as the reviewer screen shows it (no votes).
+ *
  * One statement reads the item, its sample and the project's settings, checked against the
  * caller's scope (an item of another team's project is "not found"); the project's data revision,
  * which says whether the cached feature matrix is current, is read beside it. The class list, the
  * standing and the neighbours are then read side by side: two sequential round trips after the
  * claim.
  */
-export async function reviewerItemView(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
+export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
   const { db } = deps;
   const [rows, revisionKey] = await Promise.all([
     db.$queryRaw<ItemRow[]>`
