@@ -10,7 +10,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createDb, type Db } from '@/lib/server/db';
 import { castVote, decideSplit } from '@/lib/server/queue/vote';
-import { applyChanges } from '@/lib/server/queue/apply';
+import { applyChanges, settleDeferredApplies } from '@/lib/server/queue/apply';
 import { claimNext } from '@/lib/server/queue/claim';
 import { ActionError } from '@/lib/server/authz/errors';
 import { createTestDatabase, type TestDatabase } from './db-harness';
@@ -122,6 +122,8 @@ describe('20 reviewers at once', () => {
     const splits = await db.queueItem.findMany({ where: { projectId: f.projectId, state: 'split' }, include: { sample: true } });
     expect(splits.length).toBeGreaterThan(0);
     for (const s of splits) await decideSplit({ db }, f.scope, f.lead, { projectId: f.projectId, itemId: s.id, decision: 'keep' });
+    // Checks of the apply rule that found the project locked (PostgreSQL) finish first.
+    await settleDeferredApplies();
     await applyChanges({ db }, f.scope, f.lead, f.projectId);
     await checkBooks(f, db, accepted);
   });
@@ -167,6 +169,8 @@ describe('20 reviewers at once', () => {
     for (const s of await db.queueItem.findMany({ where: { projectId: f.projectId, state: 'split' } })) {
       await decideSplit({ db }, f.scope, f.lead, { projectId: f.projectId, itemId: s.id, decision: 'keep' });
     }
+    // Checks of the apply rule that found the project locked (PostgreSQL) finish first.
+    await settleDeferredApplies();
     await applyChanges({ db }, f.scope, f.lead, f.projectId);
     await checkBooks(f, db, accepted);
   });

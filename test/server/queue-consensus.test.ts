@@ -6,11 +6,11 @@
 // cannot be both votes") and the undo rule documented in lib/server/queue/vote.ts; the refusal
 // sentences are the product's wording, asserted literally here.
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { createTestDatabase, type TestDatabase } from './db-harness';
+import { createTestDatabase, TEST_PROVIDER, type TestDatabase } from './db-harness';
 import { createItems, createQueueFixture, manualClock, refusedWith, type QueueFixture } from './queue-fixtures';
 import type { Db } from '@/lib/server/db';
 import { castVote, decideSplit, withdrawVote } from '@/lib/server/queue/vote';
-import { applyChanges, pendingChanges } from '@/lib/server/queue/apply';
+import { applyChanges, pendingChanges, settleDeferredApplies } from '@/lib/server/queue/apply';
 import { claimNext } from '@/lib/server/queue/claim';
 
 let t: TestDatabase;
@@ -241,5 +241,50 @@ describe('applying changes', () => {
     expect(await applyChanges({ db }, f.scope, f.lead, f.projectId)).toBeNull();
     const refused = await refusedWith(applyChanges({ db }, f.scope, a, f.projectId));
     expect(refused).toEqual({ status: 403, message: 'Only a lead can apply changes.' });
+  });
+  // PostgreSQL only: the rule's "do not wait for the project's lock" (lib/server/queue/apply.ts).
+  // On SQLite one writer at a time is the database's own rule, and the apply-rule test above covers
+  // the in-request apply.
+  it.skipIf(TEST_PROVIDER !== 'postgresql')('a closing vote does not wait while the project is locked; the rule applies once the lock is free', async () => {
+    const { f, items } = await fixture({ applyEvery: 2 });
+    const [a, b] = f.reviewers;
+    const targets: string[] = [];
+    for (const itemId of items.slice(0, 2)) {
+      const s = await db.sample.findFirstOrThrow({ where: { queueItems: { some: { id: itemId } } } });
+      targets.push(f.classes.find((c) => c !== s.currentLabel) as string);
+      await castVote({ db }, f.scope, a, { projectId: f.projectId, itemId, decision: 'relabel', label: targets[targets.length - 1] });
+    }
+    await castVote({ db }, f.scope, b, { projectId: f.projectId, itemId: items[0], decision: 'relabel', label: targets[0] });
+
+    // Someone else (as a refit completing would) holds the project's row lock until told to let go.
+    let letGo: () => void = () => {};
+    const held = new Promise<void>((r) => (letGo = r));
+    let locked: () => void = () => {};
+    const isLocked = new Promise<void>((r) => (locked = r));
+    const holder = db.$transaction(async (tx) => {
+      await tx.$executeRaw`UPDATE "Project" SET "currentRevision" = "currentRevision" WHERE "id" = ${f.projectId}`;
+      locked();
+      await held;
+    }, { timeout: 30_000 });
+    await isLocked;
+
+    // The second closing relabel reaches the rule while the lock is held: the vote is recorded and
+    // answers without waiting (it resolves before the lock is released), nothing applied yet.
+    const closing = await castVote({ db }, f.scope, b, { projectId: f.projectId, itemId: items[1], decision: 'relabel', label: targets[1] });
+    expect([closing.result, closing.applied]).toEqual(['closed', null]);
+    expect((await db.project.findUniqueOrThrow({ where: { id: f.projectId } })).currentRevision).toBe(0);
+    expect(await db.revision.count({ where: { projectId: f.projectId, number: { gt: 0 } } })).toBe(0);
+
+    // Once the holder commits, the background check applies both changes as one revision.
+    letGo();
+    await holder;
+    await settleDeferredApplies();
+    const project = await db.project.findUniqueOrThrow({ where: { id: f.projectId } });
+    expect(project.currentRevision).toBe(1);
+    const revision = await db.revision.findUniqueOrThrow({ where: { projectId_number: { projectId: f.projectId, number: 1 } } });
+    expect([revision.kind, revision.changeCount, revision.createdById]).toEqual(['review', 2, b.userId]);
+    const applied = await db.queueItem.findMany({ where: { id: { in: items.slice(0, 2) } }, orderBy: { id: 'asc' } });
+    expect(applied.map((i) => i.appliedRevision)).toEqual([1, 1]);
+    expect(await pendingChanges({ db }, f.scope, f.projectId)).toEqual([]);
   });
 });
