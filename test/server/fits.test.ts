@@ -231,6 +231,25 @@ describe('a fit', () => {
     expect(await db.queueItem.count({ where: { projectId: f.projectId } })).toBe(2);
   });
 
+  // lib/server/queue/build.ts refreshQueueStatistics: the claim of "next" is planned from these
+  // statistics (without them PostgreSQL walked every queue item to find the caller's own lease).
+  // This machine's server runs with autovacuum off, so nothing else analyses the table here.
+  it.skipIf(TEST_PROVIDER !== 'postgresql')('refreshes the queue table\'s planner statistics once the queue is rebuilt (PostgreSQL)', async () => {
+    const analyses = async () => {
+      await db.$queryRaw`SELECT pg_stat_clear_snapshot()::text`;
+      const rows = await db.$queryRaw<{ n: bigint | number }[]>`SELECT analyze_count + autoanalyze_count AS n FROM pg_stat_user_tables WHERE relname = 'QueueItem'`;
+      return Number(rows[0]?.n ?? 0);
+    };
+    const f = await twoClassProject();
+    await queueFit(f, await revision0(f));
+    const before = await analyses();
+    const out = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(out?.status).toBe('done');
+    expect(await analyses()).toBe(before + 1);
+    const stats = await db.$queryRaw<{ attname: string }[]>`SELECT attname FROM pg_stats WHERE tablename = 'QueueItem' AND attname = 'leaseUserId'`;
+    expect(stats).toHaveLength(1);
+  });
+
   it('fails cleanly with one class only', async () => {
     const f = await createQueueFixture(db, { classes: ['only'], samples: 10 });
     await queueFit(f, await revision0(f));

@@ -31,7 +31,7 @@ import { flagNames, supportKindName } from '../../margin/standings';
 import type { WorkerProgress } from '../../margin/run-in-worker';
 import { FitCancelledError } from '../../margin/types';
 import type { Db, DbTx } from '../db';
-import { rebuildQueueTx, type QueueCandidate, type RebuildSummary } from '../queue/build';
+import { rebuildQueueTx, refreshQueueStatistics, type QueueCandidate, type RebuildSummary } from '../queue/build';
 import { systemClock, type Clock } from '../queue/context';
 import { providerOf, serialWrite, writeTx } from '../queue/tx';
 import { fitInput, yieldToEventLoop } from './data';
@@ -789,6 +789,7 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     }
 
     options.onComplete?.({ id: fitId, revisionNumber: claimed.revisionNumber, pass });
+    await refreshQueueStatistics(db).catch((e: unknown) => log(`could not refresh the queue's statistics: ${e instanceof Error ? e.message : String(e)}`));
 
     // Remember what the next fits can reuse.
     warmStore().set(projectId, {
