@@ -408,7 +408,14 @@ async function main(): Promise<void> {
       const closing = await castVote({ db }, scope, { userId: reviewers[1], role: 'reviewer' }, { projectId: project.id, itemId: item.id, decision: 'relabel', label });
       const t1 = performance.now();
       const revision = before.currentRevision + 1;
-      if (closing.applied?.revisionNumber !== revision) throw new Error(`expected the closing vote to apply revision ${revision}`);
+      // The apply rule applies in the closing vote's request, or — on PostgreSQL, when the project's
+      // lock was held (lib/server/queue/apply.ts) — moments later in the background.
+      if (closing.applied === null) {
+        for (let waited = 0; (await db.project.findUniqueOrThrow({ where: { id: project.id } })).currentRevision < revision; waited += 20) {
+          if (waited > 30_000) throw new Error(`revision ${revision} was not applied within 30 s of the closing vote`);
+          await new Promise((r) => setTimeout(r, 20));
+        }
+      } else if (closing.applied.revisionNumber !== revision) throw new Error(`expected the closing vote to apply revision ${revision}`);
       let seenDone = NaN;
       for (;;) {
         const fit = await db.fit.findFirst({ where: { projectId: project.id, revisionNumber: revision, status: { in: ['done', 'failed', 'superseded'] } }, select: { status: true, progress: true } });
@@ -464,6 +471,9 @@ async function main(): Promise<void> {
     /** One load phase: every reviewer loops "next" → (think) → vote until the deadline or its vote cap. */
     const runLoad = async (seconds: number, thinkMs: number, voteCap: number) => {
       const nextLat: number[] = [];
+      /** BENCH_VERBOSE: when each "next" started (ms into the phase), for the list of the slowest */
+      const nextAt: number[] = [];
+      const phaseStart = performance.now();
       const voteLat: number[] = [];
       let errors = 0;
       let refused = 0;
@@ -478,6 +488,7 @@ async function main(): Promise<void> {
           while (votes < voteCap && performance.now() < deadline) {
             const n = await post('/next', user, { projectId: project.id });
             nextLat.push(n.ms);
+            nextAt.push(performance.now() - n.ms - phaseStart);
             if (n.http !== 200 || !n.json.ok) {
               errors++;
               continue;
@@ -505,6 +516,10 @@ async function main(): Promise<void> {
       );
       clientLoop.disable();
       const clientLoopMaxMs = clientLoop.max / 1e6;
+      if (process.env.BENCH_VERBOSE === '1') {
+        const slowest = nextLat.map((ms, i) => ({ ms, at: nextAt[i] })).sort((a, b) => b.ms - a.ms).slice(0, 15);
+        console.log(`    slowest "next" (started at ms into the phase → took ms): ${slowest.map((x) => `${x.at.toFixed(0)}→${x.ms.toFixed(0)}`).join(', ')}`);
+      }
       return { next: summary(nextLat), vote: summary(voteLat), votes: votesHere, refused, errors, seconds, thinkMs, clientLoopMaxMs };
     };
     const THINK_MS = Number(process.env.BENCH_THINK_MS ?? 1500);
