@@ -831,5 +831,6 @@ export function solveDcd(problem: BinaryProblem, options: DcdOptions): BinarySol
     dualityGap: primalObjective - dualObjective,
     maxKktViolation,
     converged,
+    start: from !== undefined ? 'solution' : options.warmStart !== undefined ? 'duals' : 'cold',
   };
 }

@@ -112,7 +112,21 @@ export interface ResolvedFitSettings {
 
 export interface WarmStart {
   readonly ids: readonly string[];
-  readonly boundaries: readonly { readonly positive: string; readonly negative: readonly string[]; readonly alpha: Float64Array }[];
+  readonly boundaries: readonly WarmBoundary[];
+}
+
+/** One boundary of a warm start; arrays in the warm start's `ids` order. */
+export interface WarmBoundary {
+  readonly positive: string;
+  readonly negative: readonly string[];
+  readonly alpha: Float64Array;
+  /**
+   * The whole previous solution of a linear DCD boundary with its ±1 targets (optional). When a fit
+   * has the same rows in the same order (a refit after relabels) the DCD solver starts from it
+   * (dcd.ts `warmStartFrom`: w̃ corrected by the changed αᵢyᵢ only, the first active set from its
+   * decision values) instead of from α alone, which costs a rebuild of w̃ and a full pass first.
+   */
+  readonly previous?: { readonly solution: BinarySolution; readonly y: Int8Array };
 }
 
 /** A stage of a multi-fit job, for progress display. */
@@ -334,6 +348,8 @@ function balancedWeights(y: Int8Array): { positive: number; negative: number } {
 export interface SolveExtras {
   readonly upperBound?: Float64Array;
   readonly warmStart?: Float64Array;
+  /** DCD only: a previous solution of the same rows and its targets (see WarmBoundary.previous). */
+  readonly warmStartFrom?: { readonly previous: BinarySolution; readonly previousY: Int8Array };
 }
 
 /** Runs the requested soft-margin solver on one binary problem (no fallback). */
@@ -352,7 +368,7 @@ export function solveBinary(problem: BinaryProblem, s: ResolvedFitSettings, cont
   if (s.solver === 'smo') {
     return solveSmo(problem, { ...common, kernel: s.kernel, ...(s.cacheBytes !== null ? { cacheBytes: s.cacheBytes } : {}) });
   }
-  return solveDcd(problem, { ...common, loss: s.loss, seed: s.seed });
+  return solveDcd(problem, { ...common, loss: s.loss, seed: s.seed, ...(extras.warmStartFrom ? { warmStartFrom: extras.warmStartFrom } : {}) });
 }
 
 function checkCancelled(control: SolverControl): void {
@@ -364,25 +380,42 @@ function checkCancelled(control: SolverControl): void {
  * for all boundaries. The common case — the same samples in the same order, a refit after label
  * changes — is recognised by comparing the id lists and needs no lookup table.
  */
-function warmRowsFor(warm: WarmStart, ids: readonly string[]): Int32Array {
+function warmRowsFor(warm: WarmStart, ids: readonly string[]): { readonly rows: Int32Array; readonly same: boolean } {
   const rows = new Int32Array(ids.length);
   let same = warm.ids.length === ids.length;
   for (let i = 0; same && i < ids.length; i++) same = warm.ids[i] === ids[i];
   if (same) {
     for (let i = 0; i < ids.length; i++) rows[i] = i;
-    return rows;
+    return { rows, same };
   }
   const prev = new Map<string, number>();
   for (let i = 0; i < warm.ids.length; i++) prev.set(warm.ids[i], i);
   for (let i = 0; i < ids.length; i++) rows[i] = prev.get(ids[i]) ?? -1;
-  return rows;
+  return { rows, same };
 }
 
-function warmAlphaFor(warm: InternalSettings['warmStartInternal'], spec: BoundarySpec): Float64Array | undefined {
+function warmBoundaryFor(warm: InternalSettings['warmStartInternal'], spec: BoundarySpec): WarmBoundary | undefined {
   if (!warm) return undefined;
   const key = [...spec.negative].sort(compareStrings).join('\u0000');
-  const match = warm.start.boundaries.find((b) => b.positive === spec.positive && [...b.negative].sort(compareStrings).join('\u0000') === key);
-  if (!match) return undefined;
+  return warm.start.boundaries.find((b) => b.positive === spec.positive && [...b.negative].sort(compareStrings).join('\u0000') === key);
+}
+
+/**
+ * How the solver of one boundary starts: from the previous solution when the rows are the warm
+ * start's own and both fits use linear DCD, else from the previous α matched by id (or cold).
+ */
+function warmExtrasFor(s: InternalSettings, spec: BoundarySpec): SolveExtras {
+  const warm = s.warmStartInternal;
+  const match = warmBoundaryFor(warm, spec);
+  if (!warm || !match) return {};
+  const prev = match.previous;
+  if (warm.same && prev && s.solver === 'dcd' && prev.solution.formulation === 'dcd-regularised-bias' && prev.solution.w !== null && prev.y.length === warm.rows.length) {
+    return { warmStartFrom: { previous: prev.solution, previousY: prev.y } };
+  }
+  return { warmStart: warmAlphaFor(warm, match) };
+}
+
+function warmAlphaFor(warm: NonNullable<InternalSettings['warmStartInternal']>, match: WarmBoundary): Float64Array {
   const alpha = new Float64Array(warm.rows.length);
   for (let i = 0; i < warm.rows.length; i++) {
     const j = warm.rows[i];
@@ -391,11 +424,11 @@ function warmAlphaFor(warm: InternalSettings['warmStartInternal'], spec: Boundar
   return alpha;
 }
 
-/** The warm start a later fit can reuse: every boundary's α keyed by sample id. */
+/** The warm start a later fit can reuse: every boundary's α keyed by sample id, and its whole solution (see WarmBoundary). */
 export function warmStartFrom(result: FitResult): WarmStart {
   return {
     ids: result.ids,
-    boundaries: result.boundaries.map((b) => ({ positive: b.positive, negative: b.negative, alpha: b.solution.alpha })),
+    boundaries: result.boundaries.map((b) => ({ positive: b.positive, negative: b.negative, alpha: b.solution.alpha, previous: { solution: b.solution, y: b.y } })),
   };
 }
 
@@ -425,7 +458,7 @@ function allSeparated(y: Int8Array, decision: Float64Array): boolean {
 }
 
 /** Settings inside one fit: the warm start with each current row's place in it (see warmRowsFor). */
-type InternalSettings = ResolvedFitSettings & { readonly warmStartInternal?: { readonly start: WarmStart; readonly rows: Int32Array } };
+type InternalSettings = ResolvedFitSettings & { readonly warmStartInternal?: { readonly start: WarmStart; readonly rows: Int32Array; readonly same: boolean } };
 
 function fitBoundary(
   Xp: DenseRows,
@@ -441,7 +474,7 @@ function fitBoundary(
   control.onStage?.({ stage: 'fit', step, of, label: spec.name });
   checkCancelled(control);
   if (s.hard) return fitHardBoundary(problem, spec, s, control);
-  const solution = solveBinary(problem, s, control, { warmStart: warmAlphaFor(s.warmStartInternal, spec) });
+  const solution = solveBinary(problem, s, control, warmExtrasFor(s, spec));
   const wNorm = weightNorm(solution);
   let pivots: PivotReport | null = null;
   if (s.pivotCap > 0) {
@@ -606,7 +639,7 @@ export function fitMargins(data: LabelledData, settings: FitSettings, control: E
   const resolved = resolveSettings(settings);
   const classes = validateData(data);
   const warm = resolved.hard ? undefined : settings.warmStart;
-  const s: InternalSettings = { ...resolved, warmStartInternal: warm ? { start: warm, rows: warmRowsFor(warm, data.ids) } : undefined };
+  const s: InternalSettings = { ...resolved, warmStartInternal: warm ? { start: warm, ...warmRowsFor(warm, data.ids) } : undefined };
   const classIndex = new Int32Array(data.labels.length);
   const classPos = new Map(classes.map((c, k) => [c, k]));
   for (let i = 0; i < data.labels.length; i++) classIndex[i] = classPos.get(data.labels[i]) as number;

@@ -78,6 +78,8 @@ export interface BinarySolution extends Certificates {
   readonly wNormSquared: number;
   /** Decision values f(xᵢ) on the training rows. */
   readonly decision: Float64Array;
+  /** DCD: how the solver started — cold, from previous duals (`warmStart`) or from a previous solution (`warmStartFrom`). */
+  readonly start?: 'cold' | 'duals' | 'solution';
 }
 
 export class FitCancelledError extends Error {

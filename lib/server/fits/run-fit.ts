@@ -26,7 +26,7 @@
  */
 import { readProjectSettings, type ProjectSettings } from '../../domain-queue';
 import { suspicionScore, type AuditResult } from '../../margin/audit';
-import type { FitResult, FitSettings, LabelledData, WarmStart } from '../../margin/model';
+import { warmStartFrom, type FitResult, type FitSettings, type LabelledData, type WarmStart } from '../../margin/model';
 import { flagNames, supportKindName } from '../../margin/standings';
 import type { WorkerProgress } from '../../margin/run-in-worker';
 import { FitCancelledError } from '../../margin/types';
@@ -795,7 +795,8 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     warmStore().set(projectId, {
       fitId,
       key: warmKey(fitSettings, snapshot.settings.scale),
-      warm: { ids: input.sampleIds, boundaries: fit.boundaries.map((b) => ({ positive: b.positive, negative: b.negative, alpha: b.solution.alpha })) },
+      // With each boundary's whole solution: the next refit of the same rows starts from it (model.ts WarmBoundary).
+      warm: { ids: input.sampleIds, boundaries: warmStartFrom(fit).boundaries },
     });
     if (audit) {
       const oof = new Map<string, Float64Array>();
