@@ -72,6 +72,18 @@ import { createRng } from './random';
 import type { BinaryProblem, BinarySolution, SolverControl } from './types';
 import { EngineInputError, FitCancelledError } from './types';
 
+/**
+ * What `warmStartFrom` reads of a previous solution. Its decision values only choose the first
+ * active set, so a float32 copy (a stored model's) serves as well as the solver's own.
+ */
+export interface PreviousSolution {
+  readonly formulation: BinarySolution['formulation'];
+  readonly w: Float64Array | null;
+  readonly b: number;
+  readonly alpha: Float64Array;
+  readonly decision: Float64Array | Float32Array;
+}
+
 export interface DcdOptions extends SolverControl {
   /** Cost C > 0 (finite). Cᵢ = C · class weight of yᵢ unless `upperBound` is given. */
   readonly C: number;
@@ -107,7 +119,7 @@ export interface DcdOptions extends SolverControl {
    * read-only pass, and a previous solution that does not belong to these rows is detected
    * (‖w̃‖² ≠ Σ αᵢyᵢf(xᵢ)) and answered by rebuilding w̃ from α and solving on.
    */
-  readonly warmStartFrom?: { readonly previous: BinarySolution; readonly previousY: Int8Array };
+  readonly warmStartFrom?: { readonly previous: PreviousSolution; readonly previousY: Int8Array };
   /**
    * Precision of the rows used by the coordinate updates. 'input' (default) uses X as given;
    * 'float32' works on a Float32Array copy of a Float64Array X (half the memory traffic, n·d·4 more

@@ -34,7 +34,7 @@ export * from './types';
 export { createRng, permutation, shuffleInPlace, stratifiedFoldAssignment, compareStrings, type Rng } from './random';
 export { decisionValues, kernelValue, rowSquaredNorms, validateKernel } from './kernel';
 export { solveSmo, type SmoOptions } from './smo';
-export { solveDcd, type DcdOptions } from './dcd';
+export { solveDcd, type DcdOptions, type PreviousSolution } from './dcd';
 export { decideHardMargin, exactSeparabilityTest, type HardMarginOptions, type HardMarginVerdict, type SeparabilityEvidence } from './hard-margin';
 export { applyPreprocessor, fitPreprocessor, selectRows, SCALE_KINDS, type Preprocessor, type ScaleKind } from './preprocess';
 export { stratifiedKFold, type Fold, type Folds } from './folds';

@@ -15,7 +15,7 @@
  * - Preprocessing is fitted on the rows given here (the training revision) and stored in the result.
  */
 import { solveSmo } from './smo';
-import { solveDcd } from './dcd';
+import { solveDcd, type PreviousSolution } from './dcd';
 import { decideHardMargin } from './hard-margin';
 import { fillKernelRow, rowSquaredNorms, validateKernel } from './kernel';
 import { applyPreprocessor, fitPreprocessor, selectRows, type Preprocessor, type ScaleKind } from './preprocess';
@@ -126,7 +126,7 @@ export interface WarmBoundary {
    * (dcd.ts `warmStartFrom`: w̃ corrected by the changed αᵢyᵢ only, the first active set from its
    * decision values) instead of from α alone, which costs a rebuild of w̃ and a full pass first.
    */
-  readonly previous?: { readonly solution: BinarySolution; readonly y: Int8Array };
+  readonly previous?: { readonly solution: PreviousSolution; readonly y: Int8Array };
 }
 
 /** A stage of a multi-fit job, for progress display. */
@@ -349,7 +349,7 @@ export interface SolveExtras {
   readonly upperBound?: Float64Array;
   readonly warmStart?: Float64Array;
   /** DCD only: a previous solution of the same rows and its targets (see WarmBoundary.previous). */
-  readonly warmStartFrom?: { readonly previous: BinarySolution; readonly previousY: Int8Array };
+  readonly warmStartFrom?: { readonly previous: PreviousSolution; readonly previousY: Int8Array };
 }
 
 /** Runs the requested soft-margin solver on one binary problem (no fallback). */

@@ -259,6 +259,31 @@ describe('a fit', () => {
   });
 });
 
+describe('warm start from the previous solution (linear DCD, same rows)', () => {
+  // model.ts WarmBoundary.previous: the worker that ran the previous fit keeps its solution in
+  // memory; any other process reads it back from Fit.model (decision values and training classes
+  // are stored with it). Either way a refit of the same rows starts the solver from that solution.
+  const starts = async (fitId: string | undefined) => {
+    const fit = await db.fit.findUniqueOrThrow({ where: { id: fitId } });
+    return (JSON.parse(fit.metrics ?? '{}') as { boundaries: { start: string | null }[] }).boundaries.map((b) => b.start);
+  };
+  it.each([
+    ['in the same process', false],
+    ['in another process (from the stored model)', true],
+  ] as const)('%s', async (_, restart) => {
+    const f = await twoClassProject({ applyEvery: 1, scale: 'none', solver: 'dcd' });
+    await queueFit(f, await revision0(f));
+    const first = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(first?.status).toBe('done');
+    expect(await starts(first?.fitId)).toEqual(['cold']);
+    if (restart) resetFitMemory();
+    await queueFit(f, await addRevision(f, 1));
+    const second = await processProject(db, f.projectId, { engine: inlineEngine });
+    expect(second?.status).toBe('done');
+    expect(await starts(second?.fitId)).toEqual(['solution']);
+  });
+});
+
 describe('warm start after a restart', () => {
   // A process that did not run the previous fit (a worker, or the app after a restart) takes the
   // warm start from the stored model; the model records the project's scaling, an l2 project's

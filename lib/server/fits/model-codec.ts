@@ -32,6 +32,12 @@ export interface BoundaryHeader {
   readonly alpha: ArrayRef;
   /** non-linear kernels: support vectors (row indices, αᵢyᵢ, preprocessed rows as float32) */
   readonly sv: { readonly index: ArrayRef; readonly coef: ArrayRef; readonly rows: ArrayRef; readonly cols: number } | null;
+  /**
+   * Linear DCD boundaries: the decision value of each sample (float32, `sampleIds` order), with
+   * `classIndex` what a later fit of the same rows starts its solver from (model.ts WarmBoundary).
+   * Absent in models written before it was added.
+   */
+  readonly decision?: ArrayRef | null;
 }
 
 export interface ModelHeader {
@@ -54,12 +60,15 @@ export interface ModelHeader {
   readonly boundaries: readonly BoundaryHeader[];
   /** full passes: out-of-fold decision per boundary and sample, and pivot influence per sample */
   readonly audit?: { readonly oof: readonly ArrayRef[]; readonly pivotDelta: ArrayRef } | null;
+  /** each training row's class (index into `classes`); absent in models written before it was added */
+  readonly classIndex?: ArrayRef | null;
 }
 
-export interface DecodedBoundary extends Omit<BoundaryHeader, 'w' | 'alpha' | 'sv'> {
+export interface DecodedBoundary extends Omit<BoundaryHeader, 'w' | 'alpha' | 'sv' | 'decision'> {
   readonly w: Float64Array | null;
   readonly alpha: Float64Array;
   readonly sv: { readonly index: Int32Array; readonly coef: Float64Array; readonly rows: Float32Array; readonly cols: number } | null;
+  readonly decision: Float32Array | null;
 }
 
 export interface DecodedModel {
@@ -67,6 +76,7 @@ export interface DecodedModel {
   readonly audit: { readonly oof: Float64Array[]; readonly pivotDelta: Float64Array } | null;
   readonly preprocessor: { kind: string; cols: number; mean: Float64Array | null; scale: Float64Array | null };
   readonly boundaries: readonly DecodedBoundary[];
+  readonly classIndex: Int32Array | null;
 }
 
 const MAGIC = [0x42, 0x4c, 0x4d, 0x31]; // "BLM1"
@@ -114,6 +124,7 @@ export function encodeModel(
             cols: sv.rows.cols,
           }
         : null,
+      decision: b.solution.formulation === 'dcd-regularised-bias' && b.solution.w ? blobs.add('f32', Float32Array.from(b.solution.decision)) : null,
     };
   });
   const header: ModelHeader = {
@@ -134,6 +145,7 @@ export function encodeModel(
     },
     boundaries,
     audit: audit ? { oof: audit.oof.map((o) => blobs.add('f64', o)), pivotDelta: blobs.add('f64', audit.pivotDelta) } : null,
+    classIndex: blobs.add('i32', result.classIndex),
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const start = Math.ceil((8 + json.length) / 8) * 8;
@@ -192,6 +204,7 @@ export function decodeModel(bytes: Uint8Array): DecodedModel {
     w: b.w ? f64(b.w) : null,
     alpha: f64(b.alpha),
     sv: b.sv ? { index: i32(b.sv.index), coef: f64(b.sv.coef), rows: f32(b.sv.rows), cols: b.sv.cols } : null,
+    decision: b.decision ? f32(b.decision) : null,
   }));
   const p = header.preprocessor;
   return {
@@ -199,5 +212,6 @@ export function decodeModel(bytes: Uint8Array): DecodedModel {
     audit: header.audit ? { oof: header.audit.oof.map(f64), pivotDelta: f64(header.audit.pivotDelta) } : null,
     preprocessor: { kind: p.kind, cols: p.cols, mean: p.mean ? f64(p.mean) : null, scale: p.scale ? f64(p.scale) : null },
     boundaries,
+    classIndex: header.classIndex ? i32(header.classIndex) : null,
   };
 }

@@ -26,7 +26,7 @@
  */
 import { readProjectSettings, type ProjectSettings } from '../../domain-queue';
 import { suspicionScore, type AuditResult } from '../../margin/audit';
-import { warmStartFrom, type FitResult, type FitSettings, type LabelledData, type WarmStart } from '../../margin/model';
+import { warmStartFrom, type FitResult, type FitSettings, type LabelledData, type WarmBoundary, type WarmStart } from '../../margin/model';
 import { flagNames, supportKindName } from '../../margin/standings';
 import type { WorkerProgress } from '../../margin/run-in-worker';
 import { FitCancelledError } from '../../margin/types';
@@ -36,7 +36,7 @@ import { systemClock, type Clock } from '../queue/context';
 import { providerOf, serialWrite, writeTx } from '../queue/tx';
 import { fitInput, yieldToEventLoop } from './data';
 import type { EngineRunner } from './engine';
-import { decodeModel, encodeModel } from './model-codec';
+import { decodeModel, encodeModel, type DecodedModel } from './model-codec';
 import { fitsToPrune } from './standings-store';
 import { inlineStandingsWriter, type StandingColumns, type StandingsWriter } from './standings-writer';
 
@@ -194,6 +194,21 @@ export function resetFitMemory(): void {
   warmStore().clear();
 }
 
+/**
+ * One boundary of a warm start read back from a stored model: the duals, and — for linear DCD
+ * models that carry their decision values and training classes — the previous solution too, so a
+ * worker that did not run the previous fit starts its solver from it like the one that did.
+ */
+function warmBoundaryOf(b: DecodedModel['boundaries'][number], model: DecodedModel): WarmBoundary {
+  const base = { positive: b.positive, negative: b.negative, alpha: b.alpha };
+  const classIndex = model.classIndex;
+  if (b.formulation !== 'dcd-regularised-bias' || !b.w || !b.decision || !classIndex) return base;
+  const positive = model.header.classes.indexOf(b.positive);
+  const y = new Int8Array(classIndex.length);
+  for (let i = 0; i < y.length; i++) y[i] = classIndex[i] === positive ? 1 : -1;
+  return { ...base, previous: { solution: { formulation: 'dcd-regularised-bias', w: b.w, b: b.b, alpha: b.alpha, decision: b.decision }, y } };
+}
+
 async function warmStartFor(db: Db, projectId: string, key: string): Promise<{ fitId: string; warm: WarmStart } | null> {
   const previous = await db.fit.findFirst({
     where: { projectId, status: 'done', model: { not: null } },
@@ -208,10 +223,7 @@ async function warmStartFor(db: Db, projectId: string, key: string): Promise<{ f
   try {
     const model = decodeModel(row.model);
     const prevKey = JSON.stringify([model.header.kernel, model.header.C, model.header.solver, model.header.scale]);
-    const warm: WarmStart = {
-      ids: model.header.sampleIds,
-      boundaries: model.boundaries.map((b) => ({ positive: b.positive, negative: b.negative, alpha: b.alpha })),
-    };
+    const warm: WarmStart = { ids: model.header.sampleIds, boundaries: model.boundaries.map((b) => warmBoundaryOf(b, model)) };
     warmStore().set(projectId, { fitId: previous.id, key: prevKey, warm });
     return prevKey === key ? { fitId: previous.id, warm } : null;
   } catch {
@@ -522,6 +534,8 @@ function buildMetrics(
         pivotsComputed: b.pivots ? b.pivots.computed.length : 0,
         hingeLoss: num(hinge),
         iterations: b.solution.iterations,
+        // how the solver started: cold, from the previous duals or from the previous solution (DCD)
+        start: b.solution.start ?? null,
         converged: b.solution.converged,
         primalObjective: num(b.solution.primalObjective),
         dualObjective: num(b.solution.dualObjective),
