@@ -47,6 +47,9 @@ test('two reviewers relabel a planted error, the lead applies it, the refit show
   expect(trueLabel, `no planted error among the first items (last: ${x})`).toBeDefined();
   await expect(r1.getByTestId('standing-headline')).toHaveText(/from the boundary|on the boundary/);
   await expect(r1.getByRole('heading', { name: 'Five nearest samples in feature space' })).toBeVisible();
+  // Shown with the item, or fetched right after it when the search was not done within the
+  // server's short wait (lib/server/queue/next.ts SCREEN_NEIGHBOUR_WAIT_MS).
+  await expect(r1.getByRole('region', { name: 'Five nearest samples in feature space' }).getByRole('listitem')).toHaveCount(5);
 
   // The keys are documented on the screen.
   await r1.keyboard.press('?');

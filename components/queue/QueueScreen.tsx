@@ -24,6 +24,9 @@ interface Toast {
 }
 
 const LEASE_RENEW_MS = 60_000;
+/** Follow-up requests for an item's nearest samples when the first answer came without them. */
+const NEIGHBOUR_RETRY_MS = 400;
+const NEIGHBOUR_TRIES = 10;
 
 function imageUrl(projectId: string, ref: string): string | null {
   if (/^https?:\/\//i.test(ref)) return ref;
@@ -117,6 +120,20 @@ export function QueueScreen({
     lastFitKey.current = fitKey;
     if (standingMissing && !busy) void next();
   }, [fitKey, standingMissing, busy, next]);
+
+  // An item answered before its nearest samples were found (the server does not keep a reviewer
+  // waiting for them): ask for it again shortly; the search has gone on and its result is cached.
+  const neighboursMissing = item !== undefined && item !== null && item.neighbours === null;
+  const neighbourTries = useRef<{ itemId: string; tries: number }>({ itemId: '', tries: 0 });
+  useEffect(() => {
+    if (!neighboursMissing || !item || busy) return;
+    const t = neighbourTries.current;
+    if (t.itemId !== item.itemId) neighbourTries.current = { itemId: item.itemId, tries: 0 };
+    if (neighbourTries.current.tries >= NEIGHBOUR_TRIES) return;
+    neighbourTries.current.tries++;
+    const id = setTimeout(() => void next(), NEIGHBOUR_RETRY_MS);
+    return () => clearTimeout(id);
+  }, [neighboursMissing, item, busy, next]);
 
   // Keep the lease alive while an item is on screen.
   useEffect(() => {
@@ -457,8 +474,13 @@ function ItemCard({ projectId, item }: { projectId: string; item: ReviewItemView
         <h3 id="neighbours-heading" className="text-sm font-semibold">
           Five nearest samples in feature space
         </h3>
+        {item.neighbours === null && (
+          <p className="text-sm text-slate-700" role="status">
+            Finding the nearest samples…
+          </p>
+        )}
         <ol className="space-y-1 text-sm">
-          {item.neighbours.map((n) => (
+          {(item.neighbours ?? []).map((n) => (
             <li key={n.sampleId} className="flex flex-wrap items-baseline gap-2">
               <ClassBadge name={n.label} classes={item.classes} className="text-xs" />
               <span className="font-mono text-xs text-slate-600">{n.externalId}</span>

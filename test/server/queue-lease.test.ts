@@ -8,6 +8,7 @@ import type { Db } from '@/lib/server/db';
 import { claimNext, releaseLease } from '@/lib/server/queue/claim';
 import { castVote } from '@/lib/server/queue/vote';
 import { itemForReviewer } from '@/lib/server/queue/view';
+import { nextForReviewer } from '@/lib/server/queue/next';
 
 let t: TestDatabase;
 let db: Db;
@@ -130,5 +131,28 @@ describe('claiming the next item', () => {
     const winners = results.filter((x) => x !== null);
     expect(winners).toHaveLength(1);
     expect(winners[0]?.itemId).toBe(item);
+  });
+});
+
+describe('"next" with a wait for neighbours (QueueDeps.neighbourWaitMs, the reviewer screen)', () => {
+  it('a search not done within the wait: the item comes at once without neighbours; asked again, the same item with them', async () => {
+    const f = await createQueueFixture(db, { samples: 12 });
+    await createItems(db, f);
+    const [a] = f.reviewers;
+    const clock = manualClock();
+    const input = { projectId: f.projectId };
+    const first = await nextForReviewer({ db, clock, neighbourWaitMs: 0 }, f.scope, a, input);
+    expect(first?.sample.externalId).toBeDefined();
+    expect(first?.neighbours).toBeNull();
+    let again = first;
+    for (let k = 0; k < 200 && again?.neighbours === null; k++) {
+      await new Promise((r) => setTimeout(r, 25));
+      again = await nextForReviewer({ db, clock, neighbourWaitMs: 0 }, f.scope, a, input);
+    }
+    expect(again?.itemId).toBe(first?.itemId);
+    expect(again?.neighbours).toHaveLength(5);
+    // The same five as without a wait (services and tests wait for the search).
+    const waited = await nextForReviewer({ db, clock }, f.scope, a, input);
+    expect(again?.neighbours).toEqual(waited?.neighbours);
   });
 });

@@ -19,6 +19,12 @@ export interface Actor {
 export interface QueueDeps {
   readonly db: Db;
   readonly clock?: Clock;
+  /**
+   * How long "next" waits for a nearest-neighbour search that is not cached yet (view.ts); past it
+   * the item is answered with `neighbours: null` and the search goes on, its result cached for the
+   * screen's follow-up request. Unset: wait for the search (services, tests, scripts).
+   */
+  readonly neighbourWaitMs?: number;
 }
 
 export function nowOf(deps: QueueDeps): Date {

@@ -20,6 +20,7 @@ import { QUEUE_MESSAGES } from './messages';
 import { type Scaling } from './neighbours';
 import { neighboursOfRow, prefetchNeighbours } from './neighbour-service';
 import { describeStanding, type StandingWords } from './words';
+import { record } from './trace';
 
 export interface StandingView extends StandingWords {
   readonly fitId: string;
@@ -58,7 +59,8 @@ export interface ReviewItemView {
   readonly sample: SampleView;
   readonly classes: string[];
   readonly standing: StandingView | null;
-  readonly neighbours: NeighbourView[];
+  /** null: the search was not done within the caller's wait (QueueDeps.neighbourWaitMs); asking for the item again returns them */
+  readonly neighbours: NeighbourView[] | null;
 }
 
 const metricsCache = new Map<string, { classes: string[]; nearBand: number }>();
@@ -167,10 +169,27 @@ export async function standingOf(db: Db, sampleId: string, label: string, fallba
   };
 }
 
-async function neighboursOf(db: Db, m: FeatureMatrix, sampleId: string, scaling: Scaling): Promise<NeighbourView[]> {
+/** `search`'s result, or null when it takes longer than `ms` (it goes on; errors are dropped then). */
+async function within<T>(search: Promise<T>, ms: number): Promise<T | null> {
+  let timer: ReturnType<typeof setTimeout> | undefined;
+  const late = new Promise<null>((resolve) => (timer = setTimeout(() => resolve(null), ms)));
+  try {
+    return await Promise.race([search, late]);
+  } finally {
+    clearTimeout(timer);
+    search.catch(() => undefined);
+  }
+}
+
+async function neighboursOf(db: Db, m: FeatureMatrix, sampleId: string, scaling: Scaling, waitMs: number | undefined): Promise<NeighbourView[] | null> {
   const row = m.rowOf.get(sampleId);
   if (row === undefined) return [];
-  const found = await neighboursOfRow(m, scaling, row);
+  const search = neighboursOfRow(m, scaling, row);
+  const found = waitMs === undefined ? await search : await within(search, waitMs);
+  if (found === null) {
+    record('next.neighboursLater', 0);
+    return null;
+  }
   const ids = found.map((x) => m.sampleIds[x.row]);
   if (ids.length === 0) return [];
   const samples = await db.$queryRaw<{ id: string; externalId: string; currentLabel: string; text: string | null }[]>`
@@ -279,7 +298,7 @@ export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: 
   const [classes, standing, neighbours] = await Promise.all([
     classNames(db, projectId),
     standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand),
-    neighboursOf(db, matrix, item.sampleId, settings.scale),
+    neighboursOf(db, matrix, item.sampleId, settings.scale, deps.neighbourWaitMs),
   ]);
   void prefetchUpcoming(db, matrix, settings.scale, nowOf(deps)).catch(() => undefined);
   return {
