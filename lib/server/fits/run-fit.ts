@@ -843,7 +843,8 @@ export async function runClaimedFit(db: Db, projectId: string, claimed: ClaimedF
     }
     const timings: Timings = { loadMs, engineMs, completeMs, standingsMs, totalMs: performance.now() - started };
     log(
-      `fit ${fitId} revision ${claimed.revisionNumber} ${pass}: ${n}×${d}, load ${loadMs.toFixed(0)} ms, engine ${engineMs.toFixed(0)} ms, ` +
+      `fit ${fitId} revision ${claimed.revisionNumber} ${pass}: ${n}×${d}, load ${loadMs.toFixed(0)} ms, engine ${engineMs.toFixed(0)} ms ` +
+        `(started ${fit.boundaries.map((b) => b.solution.start ?? 'cold').join('/')}${warm ? ` from fit ${warm.fitId}` : ''}), ` +
         `queue ${completeMs.toFixed(0)} ms, standings ${standingsMs.toFixed(0)} ms`,
     );
     return { ...outcome('done', pass), queue: completed.queue, timings };
