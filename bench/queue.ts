@@ -40,8 +40,9 @@
  * is created and dropped), BENCH_RELABELS (5), BENCH_REVIEWERS (20), BENCH_SECONDS, BENCH_VOTES.
  * Output: a table on stdout and bench/out/queue.json. Temporary databases are removed at the end.
  *
- * Diagnosis (all off by default): BENCH_CACHE (below), BENCH_VERBOSE=1 (the server's refit log
- * lines and event-loop stalls over 100 ms), BORDERLINE_QUEUE_TRACE=1 (stage timings of "next" and
+ * Diagnosis (all off by default): BENCH_CACHE (below), BENCH_VERBOSE=1 (the server's and workers'
+ * refit log lines, event-loop stalls over 100 ms, and each load phase's 15 slowest "next" calls
+ * with when they started), BORDERLINE_QUEUE_TRACE=1 (stage timings of "next" and
  * vote, printed when the server stops), BENCH_SQL_PROFILE=1 (SQLite: time per statement text inside
  * better-sqlite3, i.e. synchronous time on the server thread), BENCH_CPU_PROF=<dir> (V8 CPU
  * profiles of the server process's threads).
