@@ -237,7 +237,7 @@ function deferRule(deps: QueueDeps, project: Pick<ProjectRow, 'id' | 'settings'>
   checks.set(project.id, run);
 }
 
-/** Resolves when every background check of the rule started by this process has finished (tests, shutdown). */
+/** Resolves when every background check of the rule started by this process has finished (tests). */
 export async function settleDeferredApplies(): Promise<void> {
   const checks = deferredChecks();
   while (checks.size > 0) await Promise.all([...checks.values()]);
