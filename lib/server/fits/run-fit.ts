@@ -26,7 +26,7 @@
  */
 import { readProjectSettings, type ProjectSettings } from '../../domain-queue';
 import { suspicionScore, type AuditResult } from '../../margin/audit';
-import { warmStartFrom, type FitResult, type FitSettings, type LabelledData, type WarmBoundary, type WarmStart } from '../../margin/model';
+import { boundaryLabels, warmStartFrom, type FitResult, type FitSettings, type LabelledData, type WarmBoundary, type WarmStart } from '../../margin/model';
 import { flagNames, supportKindName } from '../../margin/standings';
 import type { WorkerProgress } from '../../margin/run-in-worker';
 import { FitCancelledError } from '../../margin/types';
@@ -203,9 +203,8 @@ function warmBoundaryOf(b: DecodedModel['boundaries'][number], model: DecodedMod
   const base = { positive: b.positive, negative: b.negative, alpha: b.alpha };
   const classIndex = model.classIndex;
   if (b.formulation !== 'dcd-regularised-bias' || !b.w || !b.decision || !classIndex) return base;
-  const positive = model.header.classes.indexOf(b.positive);
-  const y = new Int8Array(classIndex.length);
-  for (let i = 0; i < y.length; i++) y[i] = classIndex[i] === positive ? 1 : -1;
+  const classes = model.header.classes;
+  const y = boundaryLabels(Array.from(classIndex, (c) => classes[c]), b.positive);
   return { ...base, previous: { solution: { formulation: 'dcd-regularised-bias', w: b.w, b: b.b, alpha: b.alpha, decision: b.decision }, y } };
 }
 

@@ -21,9 +21,9 @@
  * taken, the vote returns and the rule is checked again in the background a little later
  * (`deferRule`, backing off up to DEFER_LIMIT_MS in all), by which time the holder has committed.
  * Measured before (issue "Running for a whole team", 20 reviewers on PostgreSQL during refits):
- * the closing votes that reached the rule waited for the lock, vote p95 750–940 ms on those votes. Nothing depends on the background check alone: the
- * changes stay pending (a lead sees them and can apply them), and the next closing vote checks the
- * rule again. On SQLite every write transaction waits its turn anyway (one writer per database),
+ * the closing votes that reached the rule waited for the lock, vote p95 750–940 ms on those votes.
+ * Nothing depends on the background check alone: the changes stay pending (a lead sees them and
+ * can apply them), and the next closing vote checks the rule again. On SQLite every write transaction waits its turn anyway (one writer per database),
  * so the rule applies in the vote's request as before.
  */
 import { readProjectSettings } from '../../domain-queue';

@@ -12,11 +12,13 @@ import { traced } from './trace';
 
 /**
  * The reviewer screen's wait for a neighbour search that is not cached yet (QueueDeps.neighbourWaitMs):
- * one search of a 100k × 256 project takes 20–40 ms of a core, but when many reviewers ask at once
- * (a team starting together, the first requests after a refit reordered the queue) their searches
- * queue on one thread — in the team load test the first 20 simultaneous "next" took 0.8–1 s for
- * that alone. Past this wait the screen gets the item at once and fetches it again for its
- * neighbours (QueueScreen).
+ * one search of a 100k × 256 project takes 20–40 ms of a core, and when many reviewers ask at
+ * once for items nobody searched ahead (a team starting together, the first requests after a
+ * refit reordered the queue, no reading time) their searches queue on one thread. Past this wait
+ * the screen gets the item at once and fetches it again for its neighbours (QueueScreen). In the
+ * load tests it fired mostly when reviewers took items faster than the prefetch thread searched
+ * (bench:queue's stress phase); the paced phase's slow opening burst on PostgreSQL turned out to
+ * be something else (DEVELOPERS.md, "Measured").
  */
 export const SCREEN_NEIGHBOUR_WAIT_MS = 60;
 
