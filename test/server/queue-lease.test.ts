@@ -4,7 +4,8 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from './db-harness';
 import { createItems, createQueueFixture, manualClock, refusedWith } from './queue-fixtures';
-import type { Db } from '@/lib/server/db';
+import { Prisma, type Db } from '@/lib/server/db';
+import { dataRevisionKey, dataRevisionKeyColumns, formatDataRevisionKey } from '@/lib/server/fits/data';
 import { claimNext, releaseLease } from '@/lib/server/queue/claim';
 import { castVote } from '@/lib/server/queue/vote';
 import { itemForReviewer } from '@/lib/server/queue/view';
@@ -154,5 +155,47 @@ describe('"next" with a wait for neighbours (QueueDeps.neighbourWaitMs, the revi
     // The same five as without a wait (services and tests wait for the search).
     const waited = await nextForReviewer({ db, clock }, f.scope, a, input);
     expect(again?.neighbours).toEqual(waited?.neighbours);
+  });
+});
+
+describe('what "next" reads with the item (one statement) and caches by data revision', () => {
+  it('the data revision key read as columns of another statement is the key dataRevisionKey reads', async () => {
+    const f = await createQueueFixture(db, { samples: 2 });
+    const asColumns = async (projectId: string) => {
+      const rows = await db.$queryRaw<{ dataRevisionNumber: number | bigint | null; dataRevisionAt: Date | string | number | null }[]>`
+        SELECT ${dataRevisionKeyColumns(Prisma.sql`${projectId}`)}`;
+      return formatDataRevisionKey(rows[0].dataRevisionNumber, rows[0].dataRevisionAt);
+    };
+    const at0 = await dataRevisionKey(db, f.projectId);
+    expect(at0).toMatch(/^0:\d+$/);
+    expect(await asColumns(f.projectId)).toBe(at0);
+    // A review revision does not change the features: same key. An update revision does.
+    await db.revision.create({ data: { projectId: f.projectId, number: 1, kind: 'review' } });
+    expect(await asColumns(f.projectId)).toBe(at0);
+    await db.revision.create({ data: { projectId: f.projectId, number: 2, kind: 'update' } });
+    const at2 = await dataRevisionKey(db, f.projectId);
+    expect(at2).toMatch(/^2:\d+$/);
+    expect(await asColumns(f.projectId)).toBe(at2);
+    // No revision at all.
+    const bare = await db.project.create({ data: { teamId: f.teamId, name: 'Bare', featureCount: 2, settings: '{}' } });
+    expect(await dataRevisionKey(db, bare.id)).toBe('-1:0');
+    expect(await asColumns(bare.id)).toBe('-1:0');
+  });
+
+  it('a class added by a later import shows in the item read at once, in position order', async () => {
+    const f = await createQueueFixture(db, { samples: 4, classes: ['refund', 'shipping', 'account'] });
+    await createItems(db, f);
+    const [a] = f.reviewers;
+    const deps = { db, clock: manualClock() };
+    const first = await nextForReviewer(deps, f.scope, a, { projectId: f.projectId });
+    expect(first?.classes).toEqual(['refund', 'shipping', 'account']);
+    // What an import that brings a new class writes in its transaction (lib/server/import/apply.ts).
+    await db.$transaction([
+      db.revision.create({ data: { projectId: f.projectId, number: 1, kind: 'import' } }),
+      db.projectClass.create({ data: { projectId: f.projectId, name: 'billing', position: 3 } }),
+    ]);
+    const again = await nextForReviewer(deps, f.scope, a, { projectId: f.projectId });
+    expect(again?.itemId).toBe(first?.itemId);
+    expect(again?.classes).toEqual(['refund', 'shipping', 'account', 'billing']);
   });
 });

@@ -32,6 +32,7 @@ import { ActionError, failure, failureHeaders, MESSAGES, unavailable } from './e
 import { REGISTRY, type Access, type ActionName, type RouteName } from './registry';
 import { readCaller, type CallerRecord, type ResourceRef } from './resources';
 import { mintTeamScope, type TeamScope } from './scope';
+import { traced } from '../trace';
 
 export type TeamRequirement = 'member' | 'reviewer' | 'lead';
 
@@ -155,7 +156,7 @@ export function defineAction<S extends z.ZodType, T>(
       // read: the user, the resource's team and the caller's membership in one statement.
       const parsed = spec.input.safeParse(raw);
       const sessionUserId = await ctx.sessionUserId();
-      const record = sessionUserId ? await readCaller(client, sessionUserId, parsed.success ? spec.resource(parsed.data) : undefined) : null;
+      const record = sessionUserId ? await traced('authz.caller', () => readCaller(client, sessionUserId, parsed.success ? spec.resource(parsed.data) : undefined)) : null;
       if (!record) return failure(401, MESSAGES.unauthenticated);
       if (!parsed.success) return validationFailure(parsed.error);
       const input = parsed.data;

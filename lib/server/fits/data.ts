@@ -13,7 +13,7 @@
  * LabelChange of a later revision exists, in which case it is the `fromLabel` of the earliest such
  * change. Samples added after revision N are left out.
  */
-import type { Db, DbTx } from '../db';
+import { Prisma, type Db, type DbTx } from '../db';
 import { decodeFeaturesInto } from '../features';
 
 export interface FeatureMatrix {
@@ -75,7 +75,23 @@ export async function dataRevisionKey(client: Db | DbTx, projectId: string): Pro
   const rows = await client.$queryRaw<{ number: number | bigint; createdAt: Date | string }[]>`
     SELECT "number", "createdAt" FROM "Revision" WHERE "projectId" = ${projectId} AND "kind" <> 'review' ORDER BY "number" DESC LIMIT 1`;
   const r = rows[0];
-  return r ? `${Number(r.number)}:${new Date(r.createdAt).getTime()}` : '-1:0';
+  return formatDataRevisionKey(r?.number ?? null, r?.createdAt ?? null);
+}
+
+/**
+ * The same key as two columns of a caller's statement (`dataRevisionNumber`, `dataRevisionAt`),
+ * for the project whose id is the SQL expression `projectIdColumn`: "next" reads it with the item
+ * instead of in a round trip of its own. Format the two values with `formatDataRevisionKey`.
+ */
+export function dataRevisionKeyColumns(projectIdColumn: Prisma.Sql): Prisma.Sql {
+  const newest = (column: string) => Prisma.sql`(SELECT r.${Prisma.raw(`"${column}"`)} FROM "Revision" r
+      WHERE r."projectId" = ${projectIdColumn} AND r."kind" <> 'review' ORDER BY r."number" DESC LIMIT 1)`;
+  return Prisma.sql`${newest('number')} AS "dataRevisionNumber", ${newest('createdAt')} AS "dataRevisionAt"`;
+}
+
+/** `dataRevisionKey` from the newest import / update revision's number and creation time (null: none). */
+export function formatDataRevisionKey(number: number | bigint | null, createdAt: Date | string | number | null): string {
+  return number === null || createdAt === null ? '-1:0' : `${Number(number)}:${new Date(createdAt).getTime()}`;
 }
 
 /**

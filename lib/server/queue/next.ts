@@ -8,7 +8,7 @@ import type { TeamScope } from '../authz/scope';
 import { claimNext } from './claim';
 import type { Actor, QueueDeps } from './context';
 import { itemForReviewer, type ReviewItemView } from './view';
-import { traced } from './trace';
+import { traced } from '../trace';
 
 /**
  * The reviewer screen's wait for a neighbour search that is not cached yet (QueueDeps.neighbourWaitMs):

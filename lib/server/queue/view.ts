@@ -12,7 +12,7 @@ import { roleAtLeast } from '../../domain';
 import type { TeamScope } from '../authz/scope';
 import { forbidden, notFound } from '../authz/errors';
 import { Prisma, type Db } from '../db';
-import { dataRevisionKey, featureMatrixForReading, type FeatureMatrix } from '../fits/data';
+import { dataRevisionKeyColumns, featureMatrixForReading, formatDataRevisionKey, type FeatureMatrix } from '../fits/data';
 import { unpackDetail } from '../fits/standings-store';
 import { pendingChanges } from './apply';
 import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
@@ -20,7 +20,7 @@ import { QUEUE_MESSAGES } from './messages';
 import { type Scaling } from './neighbours';
 import { neighboursOfRow, prefetchNeighbours } from './neighbour-service';
 import { describeStanding, type StandingWords } from './words';
-import { record } from './trace';
+import { record, traced } from '../trace';
 
 export interface StandingView extends StandingWords {
   readonly fitId: string;
@@ -216,6 +216,22 @@ async function classNames(db: Db, projectId: string): Promise<string[]> {
 }
 
 /**
+ * A project's class list by (project, data revision key): classes are only ever added, by an
+ * import, in the transaction that makes the import's revision (lib/server/import/apply.ts), so a
+ * list read at one data revision stays right until the key changes. Saves "next" a round trip.
+ */
+const classCache = new Map<string, { key: string; classes: string[] }>();
+
+async function classNamesAt(db: Db, projectId: string, revisionKey: string): Promise<string[]> {
+  const hit = classCache.get(projectId);
+  if (hit && hit.key === revisionKey) return hit.classes;
+  const classes = await classNames(db, projectId);
+  if (classCache.size > 1000) classCache.clear();
+  classCache.set(projectId, { key: revisionKey, classes });
+  return classes;
+}
+
+/**
  * How many of the next items a prefetch searches ahead, and how often per project at most. Far
  * ahead: neighbours depend on the features only, so a search done once serves every later claim of
  * the item, across refits; rows already cached or under way are not searched again.
@@ -261,29 +277,31 @@ interface ItemRow {
   readonly currentLabel: string;
   readonly labelRevision: number | bigint;
   readonly settings: string;
+  readonly dataRevisionNumber: number | bigint | null;
+  /** a Date, or what the driver returns for a column read through a sub-select */
+  readonly dataRevisionAt: Date | string | number | null;
 }
 
 /**
  * The item the caller holds the lease on, as the reviewer screen shows it (no votes).
  *
- * One statement reads the item, its sample and the project's settings, checked against the
- * caller's scope (an item of another team's project is "not found"); the project's data revision,
- * which says whether the cached feature matrix is current, is read beside it. The class list, the
- * standing and the neighbours are then read side by side: two sequential round trips after the
- * claim.
+ * One statement reads the item, its sample, the project's settings and its data revision key
+ * (which says whether the cached feature matrix and class list are current), checked against the
+ * caller's scope (an item of another team's project is "not found"). The standing and the
+ * neighbours are then read side by side: two sequential round trips after the claim, three
+ * statements in all (the class list is read again only after an import).
  */
 export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
   const { db } = deps;
-  const [rows, revisionKey] = await Promise.all([
-    db.$queryRaw<ItemRow[]>`
+  const rows = await traced('view.item', () => db.$queryRaw<ItemRow[]>`
       SELECT q."id", q."round", q."reasons", q."suspicion", q."leaseUserId", q."leaseExpiresAt", q."sampleId",
-        s."externalId", s."text", s."imageRef", s."metadata", s."currentLabel", s."labelRevision", p."settings"
+        s."externalId", s."text", s."imageRef", s."metadata", s."currentLabel", s."labelRevision", p."settings",
+        ${dataRevisionKeyColumns(Prisma.sql`q."projectId"`)}
       FROM "QueueItem" q JOIN "Sample" s ON s."id" = q."sampleId" JOIN "Project" p ON p."id" = q."projectId"
-      WHERE q."id" = ${itemId} AND q."projectId" = ${projectId} AND p."teamId" = ${scope.teamId}`,
-    dataRevisionKey(db, projectId),
-  ]);
+      WHERE q."id" = ${itemId} AND q."projectId" = ${projectId} AND p."teamId" = ${scope.teamId}`);
   const item = rows[0];
   if (!item) throw notFound();
+  const revisionKey = formatDataRevisionKey(item.dataRevisionNumber, item.dataRevisionAt);
   const settings = readProjectSettings(item.settings);
   const sample: SampleView = {
     id: item.sampleId,
@@ -294,11 +312,11 @@ export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: 
     currentLabel: item.currentLabel,
     labelRevision: Number(item.labelRevision),
   };
-  const matrix = await featureMatrixForReading(db, projectId, revisionKey);
+  const matrix = await traced('view.matrix', () => featureMatrixForReading(db, projectId, revisionKey));
   const [classes, standing, neighbours] = await Promise.all([
-    classNames(db, projectId),
-    standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand),
-    neighboursOf(db, matrix, item.sampleId, settings.scale, deps.neighbourWaitMs),
+    traced('view.classes', () => classNamesAt(db, projectId, revisionKey)),
+    traced('view.standing', () => standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand)),
+    traced('view.neighbours', () => neighboursOf(db, matrix, item.sampleId, settings.scale, deps.neighbourWaitMs)),
   ]);
   void prefetchUpcoming(db, matrix, settings.scale, nowOf(deps)).catch(() => undefined);
   return {

@@ -32,7 +32,7 @@ import { nowOf, projectInScope, type Actor, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
 import { writeTx } from './tx';
 import { maybeAutoApplyInProject, type AppliedBatch } from './apply';
-import { traced } from './trace';
+import { traced } from '../trace';
 
 export interface VoteOutcome {
   readonly voteId: string;
