@@ -83,6 +83,29 @@ function forwardPrismaLog(client: { $on(event: 'warn' | 'error', cb: (e: { messa
   client.$on('error', (e) => log.error('prisma error', { target: e.target, detail: e.message }));
 }
 
+/** Which database a client talks to (read once from the client's generated configuration). */
+export function providerOf(client: Db): DbProvider {
+  // The generated client records its provider in `_activeProvider`; it is not part of the typed
+  // surface, so it is read through a narrow structural view. Both values are the only two we build.
+  const p = (client as unknown as { _activeProvider?: unknown })._activeProvider;
+  return p === 'postgresql' ? 'postgresql' : 'sqlite';
+}
+
+/** Connections of a process's PostgreSQL client pool (node-postgres's default size, kept open). */
+export const PG_POOL_SIZE = 10;
+
+/**
+ * Opens every connection of a PostgreSQL client's pool now, so the first burst of requests does
+ * not pay for opening them: when an app instance starts, twenty reviewers asking at once would
+ * otherwise each wait for a new connection (a new server process) on a busy machine. The pool
+ * opens one connection per waiting query, so PG_POOL_SIZE concurrent trivial queries open them
+ * all. Nothing to do on SQLite.
+ */
+export async function warmDbPool(client: Db): Promise<void> {
+  if (providerOf(client) !== 'postgresql') return;
+  await Promise.all(Array.from({ length: PG_POOL_SIZE }, () => client.$queryRawUnsafe('SELECT 1')));
+}
+
 /** A new client for one database. Prefer `db()`; this is for scripts and tests. */
 export function createDb(config: DatabaseConfig, options: CreateDbOptions = {}): Db {
   if (config.provider === 'sqlite') {
@@ -93,7 +116,9 @@ export function createDb(config: DatabaseConfig, options: CreateDbOptions = {}):
     forwardPrismaLog(client);
     return client as unknown as Db;
   }
-  const adapter = new PrismaPg({ connectionString: config.url, connectionTimeoutMillis: 10_000 });
+  // min = max: a connection once opened stays open (pg-pool closes idle ones only above `min`), so
+  // a burst of requests after a quiet spell does not wait for new connections (see warmDbPool).
+  const adapter = new PrismaPg({ connectionString: config.url, connectionTimeoutMillis: 10_000, max: PG_POOL_SIZE, min: PG_POOL_SIZE });
   // The PostgreSQL client is generated from the same model as the SQLite one; its delegates and
   // results have the same shapes (PostgreSQL only adds options such as `mode: 'insensitive'`),
   // so it is used through the canonical type. This is the one place the two types meet.

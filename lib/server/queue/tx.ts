@@ -21,23 +21,16 @@
  *   up to its commit (it is: all effects are inside the transaction).
  */
 import { Prisma } from '../generated/sqlite/client';
-import type { Db, DbTx } from '../db';
-import { record } from './trace';
+import { providerOf, type Db, type DbProvider, type DbTx } from '../db';
+import { record } from '../trace';
 import { asPendingWrite, backgroundIdle, backgroundTurn, newWriterGate } from '../sqlite-gate';
 
 export type LockKey = { readonly table: 'QueueItem' | 'Project' | 'Fit'; readonly id: string };
 
 const TX_OPTIONS = { maxWait: 15_000, timeout: 30_000 } as const;
 
-export type Provider = 'sqlite' | 'postgresql';
-
-/** Which database a client talks to (read once from the client's generated configuration). */
-export function providerOf(client: Db): Provider {
-  // The generated client records its provider in `_activeProvider`; it is not part of the typed
-  // surface, so it is read through a narrow structural view. Both values are the only two we build.
-  const p = (client as unknown as { _activeProvider?: unknown })._activeProvider;
-  return p === 'postgresql' ? 'postgresql' : 'sqlite';
-}
+export type Provider = DbProvider;
+export { providerOf };
 
 function messageOf(e: unknown): string {
   return e instanceof Error ? `${e.name} ${e.message} ${String((e as { code?: unknown }).code ?? '')}` : String(e);
