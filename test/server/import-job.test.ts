@@ -11,6 +11,8 @@ import { POST as samplesRoute } from '@/app/api/v1/projects/[projectId]/samples/
 import { mintTeamScope } from '@/lib/server/authz/scope';
 import { importSamples, type ImportOutcome } from '@/lib/server/import';
 import { JOB_IMPORT_MIN_BYTES, type ImportStreamLine } from '@/lib/server/import/http';
+import { importThreadStarted, stageInThread } from '@/lib/server/import/thread';
+import { parseDatabaseUrl } from '@/lib/server/env';
 import { startImportJobWorker, type ImportJobWorker } from '@/lib/server/import/job';
 import { appJobSystem } from '@/lib/server/jobs/app';
 import { newTokenSecret } from '@/lib/server/tokens';
@@ -132,10 +134,13 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('imports on the job system', () 
     expect(reference.ok).toBe(true);
 
     const target = await twinProject('Buoys (job system)');
+    expect(importThreadStarted()).toBe(false);
     const res = await post(importRoute as Handler, target, '?fileName=buoys.csv&mode=insert', body, { cookie });
     expect(res.status).toBe(200);
     expect(res.headers.get('content-type')).toBe('application/x-ndjson; charset=utf-8');
     const events = (await res.text()).trim().split('\n').map((l) => JSON.parse(l) as ImportStreamLine);
+    // The upload was staged by the import thread, not on the thread answering requests.
+    expect(importThreadStarted()).toBe(true);
     const last = events.at(-1);
     if (last?.type !== 'result') throw new Error(JSON.stringify(last));
     expect(comparable(last.outcome)).toEqual(comparable(reference));
@@ -208,6 +213,23 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('imports on the job system', () 
     expect(await content(target)).toEqual(before);
     // Both projects: the insert, the update, the refusal.
     expect(await history(target)).toEqual(await history(twin));
+    expect(await app.client.importChunk.count()).toBe(0);
+  });
+
+  it('an upload whose body fails mid-way in the import thread: the same error, its batch and chunks removed', async () => {
+    const target = await twinProject('Buoys (broken upload)');
+    async function* broken(): AsyncGenerator<Uint8Array> {
+      // two 4 MB chunks' worth (the first is written while the second arrives), then the body fails
+      for (let i = 0; i < 9; i++) yield new Uint8Array(1024 * 1024).fill(0x61);
+      throw new Error('the client went away mid-upload');
+    }
+    const stored: number[] = [];
+    const staging = stageInThread(parseDatabaseUrl(app.t.url, process.cwd()), world.scope, target, { fileName: 'broken.csv', mode: 'insert', address: null }, f.leadA, broken(), {
+      onStored: (bytes) => stored.push(bytes),
+    });
+    await expect(staging).rejects.toThrow('the client went away mid-upload');
+    expect(stored[0]).toBe(4 * 1024 * 1024);
+    expect(await app.client.importBatch.count({ where: { projectId: target } })).toBe(0);
     expect(await app.client.importChunk.count()).toBe(0);
   });
 

@@ -17,8 +17,8 @@ import { env } from '../env';
 import { appJobSystem } from '../jobs/app';
 import { importSamples, type ImportInput, type ImportOutcome, type ImportProgress } from './index';
 import type { StoredOutcome } from './job';
-import { queueImportJob, stageImport, waitForImport } from './staged';
-import { importInThread } from './thread';
+import { queueImportJob, waitForImport } from './staged';
+import { importInThread, stageInThread } from './thread';
 
 /**
  * Files at least this large go through the job system when it is on (BORDERLINE_JOBS=job-system,
@@ -68,8 +68,9 @@ async function importThroughJobSystem(
   const boss = await appJobSystem();
   const client = db();
   let lastReport = 0;
-  const staged = await stageImport(
-    client,
+  // Staged in the import thread: the chunk writes stay off the thread that answers reviewers.
+  const staged = await stageInThread(
+    env().database,
     scope,
     projectId,
     { fileName: input.fileName, mode: input.mode, featurePrefix: input.featurePrefix, address: input.address ?? null },

@@ -1,7 +1,7 @@
 /**
  * Worker-thread entry of the import thread (started by thread.ts; not imported by anything else).
- * Runs `importSamples` on its own database client per database, fed by the bytes the server
- * thread relays; on SQLite its writes take their turn as a background writer (workerData.gate, the
+ * Runs `importSamples` (or, for the PostgreSQL job system, `stageImport`) on its own database
+ * client per database, fed by the bytes the server thread relays; on SQLite its writes take their turn as a background writer (workerData.gate, the
  * server thread's writer gate). Protocol: see thread.ts.
  */
 import { parentPort, workerData } from 'node:worker_threads';
@@ -10,6 +10,7 @@ import { createDb, type Db } from '../db';
 import type { DatabaseConfig } from '../env';
 import { writeAsBackgroundThread } from '../queue/tx';
 import { importSamples } from './index';
+import { stageImport } from './staged';
 import { fromThreadError, toThreadError, type FromThread, type ToThread } from './thread';
 
 const port = parentPort;
@@ -84,6 +85,17 @@ port.on('message', (m: ToThread) => {
       progressEveryMs: 250,
     })
       .then((outcome) => send({ type: 'outcome', id: m.id, outcome }))
+      .catch((error: unknown) => send({ type: 'error', id: m.id, error: toThreadError(error) }))
+      .finally(() => inboxes.delete(m.id));
+    return;
+  }
+  if (m.type === 'stage') {
+    const inbox = new Inbox(m.id);
+    inboxes.set(m.id, inbox);
+    void stageImport(clientFor(m.database), mintTeamScope(m.teamId), m.projectId, m.settings, m.userId, inbox, {
+      onStored: (bytes) => send({ type: 'stored', id: m.id, bytes }),
+    })
+      .then((staged) => send({ type: 'staged', id: m.id, staged }))
       .catch((error: unknown) => send({ type: 'error', id: m.id, error: toThreadError(error) }))
       .finally(() => inboxes.delete(m.id));
     return;
