@@ -108,12 +108,16 @@ async function serve(): Promise<void> {
   // The app's modules read DATABASE_URL on first use; the parent set it in our environment.
   const { runWithRequestContext } = await import('../lib/server/authz/context');
   const { claimNextItem } = await import('../app/actions/claim-next-item');
-  const { record } = await import('../lib/server/queue/trace');
+  const { record, traceRequest } = await import('../lib/server/trace');
+  const serverStart = performance.now();
   const { castVote } = await import('../app/actions/cast-vote');
   const { ensureFitWorker } = await import('../lib/server/fits');
   const { importJsonResponse } = await import('../lib/server/import/http');
   const { mintTeamScope } = await import('../lib/server/authz/scope');
   const { Readable } = await import('node:stream');
+  // As the app's start does (instrumentation.ts): open the connection pool, then the fit worker.
+  const { db: appDb, warmDbPool } = await import('../lib/server/db');
+  await warmDbPool(appDb());
   await ensureFitWorker();
   /** POST /import?team=&project=&user=&file= — the pipeline API's import, without the token check. */
   const importRequest = async (req: IncomingMessage): Promise<{ status: number; text: string }> => {
@@ -133,7 +137,11 @@ async function serve(): Promise<void> {
   const server = createServer((req: IncomingMessage, res: ServerResponse) => {
     void (async () => {
       if (req.url?.startsWith('/import')) {
+        const i0 = performance.now();
         const r = await importRequest(req);
+        if (process.env.BENCH_VERBOSE === '1') {
+          process.stderr.write(`[server] import ${r.status} from ${((i0 - serverStart) / 1000).toFixed(2)} s to ${((performance.now() - serverStart) / 1000).toFixed(2)} s\n`);
+        }
         res.writeHead(r.status, { 'content-type': 'application/json', 'content-length': Buffer.byteLength(r.text) });
         res.end(r.text);
         return;
@@ -142,10 +150,16 @@ async function serve(): Promise<void> {
       const body: unknown = JSON.parse((await read(req)) || '{}');
       const ctx = { sessionUserId: async () => userId || null, address: async () => '127.0.0.1', now: () => new Date() };
       const t0 = performance.now();
-      const result: unknown =
-        req.url === '/next' ? await runWithRequestContext(ctx, () => claimNextItem(body)) : await runWithRequestContext(ctx, () => castVote(body));
+      const { result, stages } = await traceRequest<unknown>(() =>
+        req.url === '/next' ? runWithRequestContext(ctx, () => claimNextItem(body)) : runWithRequestContext(ctx, () => castVote(body)),
+      );
       // With BORDERLINE_QUEUE_TRACE: the whole action (authorization wrapper included) beside its stages.
-      record(req.url === '/next' ? 'action.next' : 'action.vote', performance.now() - t0);
+      const took = performance.now() - t0;
+      record(req.url === '/next' ? 'action.next' : 'action.vote', took);
+      if (process.env.BENCH_VERBOSE === '1' && took > 250 && stages.length > 0) {
+        const parts = stages.map(([label, a, b]) => `${label} ${a.toFixed(0)}→${b.toFixed(0)}`).join(', ');
+        process.stderr.write(`[server] slow ${req.url} ${took.toFixed(0)} ms at ${((t0 - serverStart) / 1000).toFixed(2)} s: ${parts}\n`);
+      }
       const text = JSON.stringify(result);
       res.writeHead(200, { 'content-type': 'application/json', 'content-length': Buffer.byteLength(text) });
       res.end(text);
@@ -163,7 +177,7 @@ async function serve(): Promise<void> {
 
   const loop = monitorEventLoopDelay({ resolution: 10 });
   loop.enable();
-  const { traceReport } = await import('../lib/server/queue/trace');
+  const { traceReport } = await import('../lib/server/trace');
   if (process.env.BENCH_SQL_PROFILE === '1') {
     // Wraps every prepared statement of better-sqlite3 (the driver of Prisma's SQLite adapter).
     const { createRequire } = await import('node:module');
