@@ -14,7 +14,9 @@
  *     membership, validation, services) with the reviewer's identity — the session cookie decoding
  *     of next-auth is the only step left out — and runs the fit worker, so the refits triggered by
  *     the apply rule (every 10 agreed relabels) run during the test. Bounded by BENCH_SECONDS
- *     (default 20 s) and BENCH_VOTES per reviewer (default 60); stops by itself. Then a stress phase
+ *     (default 20 s) and BENCH_VOTES per reviewer (default 60); stops by itself. All reviewers ask
+ *     for their first item at the same instant, unless BENCH_RAMP_MS spreads their starts over that
+ *     many milliseconds (a team arriving over a second or two). Then a stress phase
  *     without reading time (BENCH_STRESS_SECONDS, default 10 s; informational). Latency p50 / p95 /
  *     p99 of "next" and "vote"; target p95 < 200 ms for the paced phase. Afterwards the books are
  *     checked: no lost or duplicated votes, every relabel in exactly one revision.
@@ -484,7 +486,7 @@ async function main(): Promise<void> {
       return { ms: performance.now() - s, http: res.status, json };
     };
     /** One load phase: every reviewer loops "next" → (think) → vote until the deadline or its vote cap. */
-    const runLoad = async (seconds: number, thinkMs: number, voteCap: number) => {
+    const runLoad = async (seconds: number, thinkMs: number, voteCap: number, rampMs = 0) => {
       const nextLat: number[] = [];
       /** BENCH_VERBOSE: when each "next" started (ms into the phase), for the list of the slowest */
       const nextAt: number[] = [];
@@ -500,6 +502,8 @@ async function main(): Promise<void> {
       await Promise.all(
         reviewers.map(async (user, r) => {
           let votes = 0;
+          // BENCH_RAMP_MS: reviewer r starts r / REVIEWERS of the ramp into the phase (0: all at once).
+          if (rampMs > 0) await new Promise((res) => setTimeout(res, (rampMs * r) / reviewers.length));
           while (votes < voteCap && performance.now() < deadline) {
             const n = await post('/next', user, { projectId: project.id });
             nextLat.push(n.ms);
@@ -539,7 +543,11 @@ async function main(): Promise<void> {
     };
     const THINK_MS = Number(process.env.BENCH_THINK_MS ?? 1500);
     const STRESS_SECONDS = Number(process.env.BENCH_STRESS_SECONDS ?? 10);
-    console.log(`  load test: ${REVIEWERS} reviewers reading ${THINK_MS} ms (±50 %) per item, ≤ ${SECONDS} s, ≤ ${VOTES_PER_REVIEWER} votes each, on 127.0.0.1 …`);
+    /** Paced phase: reviewers start one after another over this many ms (default 0: all at the same instant). */
+    const RAMP_MS = Number(process.env.BENCH_RAMP_MS ?? 0);
+    console.log(
+      `  load test: ${REVIEWERS} reviewers reading ${THINK_MS} ms (±50 %) per item, ≤ ${SECONDS} s, ≤ ${VOTES_PER_REVIEWER} votes each, on 127.0.0.1, ${RAMP_MS > 0 ? `starting one after another over ${RAMP_MS} ms` : 'all starting at the same instant'} …`,
+    );
     // Warm-up, not measured, so the load test sees a running server rather than a cold start: the
     // first "next" reads the project's feature matrix into memory, and one relabel (apply rule
     // briefly 1) makes the server's fit worker run one refit, which loads what later refits reuse
@@ -601,7 +609,7 @@ async function main(): Promise<void> {
     let pacedOver = false;
     const importing = IMPORT_ROWS > 0 ? runImports(() => pacedOver) : Promise.resolve();
     if (IMPORT_ROWS > 0) console.log(`  imports during the paced phase: ${IMPORT_ROWS} × ${COLS} CSV every ${IMPORT_EVERY_MS} ms into a second project (${JOBS})`);
-    const paced = await runLoad(SECONDS, THINK_MS, VOTES_PER_REVIEWER);
+    const paced = await runLoad(SECONDS, THINK_MS, VOTES_PER_REVIEWER, RAMP_MS);
     pacedOver = true;
     await importing;
     out.imports = { rows: IMPORT_ROWS, latency: summary(imports.latency), accepted: imports.accepted, errors: imports.errors, failures: imports.failures.slice(0, 5) };
