@@ -56,6 +56,14 @@ describe(`migrations on ${TEST_PROVIDER}`, () => {
     expect(again.applied).toEqual([]);
   });
 
+  it.skipIf(TEST_PROVIDER !== 'postgresql')('stores staged upload chunks uncompressed (0008: storage EXTERNAL, not the default EXTENDED)', async () => {
+    // attstorage codes, PostgreSQL documentation of pg_attribute: 'x' extended, 'e' external.
+    const rows = await t.client().$queryRawUnsafe<{ attstorage: string }[]>(
+      `SELECT "attstorage"::text AS "attstorage" FROM "pg_attribute" WHERE "attrelid" = '"ImportChunk"'::regclass AND "attname" = 'data'`,
+    );
+    expect(rows).toEqual([{ attstorage: 'e' }]);
+  });
+
   it('makes the audit log append-only (UPDATE and DELETE refused, INSERT allowed)', async () => {
     const db = t.client();
     const event = await db.auditEvent.create({ data: { action: 'team.created', detail: '{}' } });
