@@ -38,6 +38,7 @@ const RELEASE = [
   '0005_queue_lease_index',
   '0006_standing_drop_suspicion_index',
   '0007_sample_project_id_index',
+  '0008_import_chunk_uncompressed',
 ];
 const AFTER_0001 = RELEASE.slice(1);
 
