@@ -17,7 +17,7 @@
  * The rule never makes a vote wait for the project's lock on PostgreSQL. Whoever holds it — a
  * refit completing (it rebuilds the queue under that lock, up to a second or two on a 100k
  * project), another apply, a settings change — the rule takes the lock only if it is free
- * (`FOR UPDATE SKIP LOCKED`), trying once more 30 ms later (brief holders); if it is still
+ * (`FOR NO KEY UPDATE SKIP LOCKED`), trying once more 30 ms later (brief holders); if it is still
  * taken, the vote returns and the rule is checked again in the background a little later
  * (`deferRule`, backing off up to DEFER_LIMIT_MS in all), by which time the holder has committed.
  * Measured before (issue "Running for a whole team", 20 reviewers on PostgreSQL during refits):
@@ -35,7 +35,7 @@ import { enqueueFitTx } from '../fits/enqueue';
 import { notifyFitQueued } from '../fits/jobs';
 import { nowOf, projectInScope, type Actor, type ProjectRow, type QueueDeps } from './context';
 import { QUEUE_MESSAGES } from './messages';
-import { providerOf, writeTx } from './tx';
+import { lockRows, providerOf, writeTx } from './tx';
 import { log } from '../log';
 
 export interface AppliedBatch {
@@ -78,6 +78,7 @@ export async function pendingChanges(deps: QueueDeps, scope: TeamScope, projectI
 
 async function applyInTx(
   tx: DbTx,
+  sqlite: boolean,
   projectId: string,
   userId: string | null,
   trigger: AppliedBatch['trigger'],
@@ -90,7 +91,7 @@ async function applyInTx(
   if (candidates.length === 0 || candidates.length < minimum) return null;
   // Lock the items (an undo of a closing vote may be racing), then re-read them.
   const ids = candidates.map((c) => c.id).sort();
-  for (const id of ids) await tx.$executeRaw`UPDATE "QueueItem" SET "round" = "round" WHERE "id" = ${id}`;
+  await lockRows(tx, ids.map((id) => ({ table: 'QueueItem' as const, id })), sqlite);
   const items = await tx.queueItem.findMany({
     where: { ...pendingWhere(projectId), id: { in: ids } },
     orderBy: [{ closedAt: 'asc' }, { id: 'asc' }],
@@ -150,7 +151,7 @@ async function applyAndNotify(
   trigger: AppliedBatch['trigger'],
   minimum: number,
 ): Promise<AppliedBatch | null> {
-  const batch = await writeTx(deps.db, [{ table: 'Project', id: projectId }], (tx) => applyInTx(tx, projectId, userId, trigger, minimum, nowOf(deps)));
+  const batch = await writeTx(deps.db, [{ table: 'Project', id: projectId }], (tx) => applyInTx(tx, providerOf(deps.db) === 'sqlite', projectId, userId, trigger, minimum, nowOf(deps)));
   if (batch) await notifyFitQueued({ projectId, revisionNumber: batch.revisionNumber, fitId: batch.fitId });
   return batch;
 }
@@ -200,9 +201,9 @@ async function ruleOnce(deps: QueueDeps, project: Pick<ProjectRow, 'id' | 'setti
   if (pending < applyEvery) return null;
   if (providerOf(deps.db) !== 'postgresql') return applyAndNotify(deps, project.id, userId, 'rule', applyEvery);
   const batch = await writeTx(deps.db, [], async (tx) => {
-    const locked = await tx.$queryRaw<{ id: string }[]>`SELECT "id" FROM "Project" WHERE "id" = ${project.id} FOR UPDATE SKIP LOCKED`;
+    const locked = await tx.$queryRaw<{ id: string }[]>`SELECT "id" FROM "Project" WHERE "id" = ${project.id} FOR NO KEY UPDATE SKIP LOCKED`;
     if (locked.length === 0) return 'busy' as const;
-    return applyInTx(tx, project.id, userId, 'rule', applyEvery, nowOf(deps));
+    return applyInTx(tx, false, project.id, userId, 'rule', applyEvery, nowOf(deps));
   });
   if (batch !== 'busy' && batch) await notifyFitQueued({ projectId: project.id, revisionNumber: batch.revisionNumber, fitId: batch.fitId });
   return batch;

@@ -52,8 +52,8 @@ export async function claimNext(
  *   transaction takes the write lock at once (no separate lock statement, see tx.ts) and the choice
  *   and the take are atomic.
  * - PostgreSQL: one statement, no interactive transaction (whose BEGIN / COMMIT round trips held a
- *   pooled connection while reviewers queued): the candidate row is locked `FOR UPDATE SKIP
- *   LOCKED`, so reviewers racing for the head of the queue each lock a different row instead of
+ *   pooled connection while reviewers queued): the candidate row is locked `FOR NO KEY UPDATE
+ *   SKIP LOCKED` (the claim changes no key; see tx.ts on lock strengths), so reviewers racing for the head of the queue each lock a different row instead of
  *   waiting for one another; a row leased meanwhile by a committed claim is re-checked against the
  *   conditions under the lock (READ COMMITTED) and passed over. Of racing reviewers exactly one
  *   gets each item.
@@ -138,7 +138,7 @@ async function claimPostgres(db: Db, a: TakeArgs): Promise<string | null> {
     try {
       // Data-modifying CTEs run once each, on one snapshot; `released` never touches the taken row.
       const rows = await db.$queryRaw<{ id: string }[]>`
-        WITH picked AS (SELECT "id" FROM (SELECT ${candidate(a, Prisma.sql`FOR UPDATE SKIP LOCKED`)} AS "id") c WHERE "id" IS NOT NULL),
+        WITH picked AS (SELECT "id" FROM (SELECT ${candidate(a, Prisma.sql`FOR NO KEY UPDATE SKIP LOCKED`)} AS "id") c WHERE "id" IS NOT NULL),
         taken AS (
           UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${updatedAt}
           WHERE "id" IN (SELECT "id" FROM picked)

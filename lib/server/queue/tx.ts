@@ -2,16 +2,23 @@
  * Write transactions for queue and fit state, safe on SQLite and PostgreSQL.
  *
  * Every state transition runs in `writeTx(db, lockKeys, fn)`:
- * - The transaction's FIRST statement is a no-op UPDATE of the rows named in `lockKeys`
- *   (`UPDATE "QueueItem" SET "round" = "round" WHERE id = …`, `UPDATE "Project" SET
- *   "currentRevision" = "currentRevision" WHERE id = …`).
- *   · SQLite: a write as the first statement takes the database write lock at once, so the
- *     transaction behaves like BEGIN IMMEDIATE: a second connection waits on busy_timeout instead
- *     of failing when it upgrades a read snapshot (SQLITE_BUSY_SNAPSHOT). Within one Prisma client
- *     the better-sqlite3 adapter serialises transactions anyway.
- *   · PostgreSQL (READ COMMITTED): the UPDATE takes the row lock, so two transactions on the same
+ * - The transaction's FIRST statements lock the rows named in `lockKeys`.
+ *   · SQLite: a no-op UPDATE (`UPDATE "QueueItem" SET "round" = "round" WHERE id = …`, likewise
+ *     `Project."currentRevision"`, `Fit."progress"`). A write as the first statement takes the
+ *     database write lock at once, so the transaction behaves like BEGIN IMMEDIATE: a second
+ *     connection waits on busy_timeout instead of failing when it upgrades a read snapshot
+ *     (SQLITE_BUSY_SNAPSHOT). Within one Prisma client the better-sqlite3 adapter serialises
+ *     transactions anyway.
+ *   · PostgreSQL (READ COMMITTED): `SELECT 1 … FOR NO KEY UPDATE`, so two transactions on the same
  *     item or project run one after the other, and every later statement of the second sees the
- *     first one's committed writes.
+ *     first one's committed writes. Not a no-op UPDATE: that writes a new row version, and
+ *     PostgreSQL re-checks the foreign keys of a row its own transaction wrote whenever the
+ *     transaction updates it again; a vote's update of its item then took FOR KEY SHARE on the
+ *     project's row and waited for whoever held that row — a refit's completing transaction
+ *     rescoring the queue, which in turn waited for the vote's item: a deadlock, broken by
+ *     PostgreSQL after 1 s (bench:team; test/server/queue-locks.test.ts). NO KEY UPDATE rather
+ *     than UPDATE: it leaves the FOR KEY SHARE of foreign-key checks by other transactions
+ *     (a vote row referencing a locked item, a queue item referencing a locked project) unblocked.
  * - SQLite allows one writer at a time per database anyway, so on SQLite every writeTx of this
  *   thread also queues on one mutex, and threads with their own connection take turns through the
  *   writer gate (lib/server/sqlite-gate.ts), so the server thread never blocks in SQLite's busy
@@ -45,13 +52,20 @@ export function isTransient(e: unknown): boolean {
   );
 }
 
-async function lockRows(tx: DbTx, keys: readonly LockKey[]): Promise<void> {
+/** Locks `keys` in a transaction as writeTx does (see the module comment). */
+export async function lockRows(tx: DbTx, keys: readonly LockKey[], sqlite: boolean): Promise<void> {
   // Fixed order (table, id) so that two transactions never lock the same rows in opposite order.
   const sorted = [...keys].sort((a, b) => (a.table === b.table ? (a.id < b.id ? -1 : a.id > b.id ? 1 : 0) : a.table < b.table ? -1 : 1));
   for (const k of sorted) {
-    if (k.table === 'QueueItem') await tx.$executeRaw`UPDATE "QueueItem" SET "round" = "round" WHERE "id" = ${k.id}`;
-    else if (k.table === 'Project') await tx.$executeRaw`UPDATE "Project" SET "currentRevision" = "currentRevision" WHERE "id" = ${k.id}`;
-    else await tx.$executeRaw`UPDATE "Fit" SET "progress" = "progress" WHERE "id" = ${k.id}`;
+    if (sqlite) {
+      if (k.table === 'QueueItem') await tx.$executeRaw`UPDATE "QueueItem" SET "round" = "round" WHERE "id" = ${k.id}`;
+      else if (k.table === 'Project') await tx.$executeRaw`UPDATE "Project" SET "currentRevision" = "currentRevision" WHERE "id" = ${k.id}`;
+      else await tx.$executeRaw`UPDATE "Fit" SET "progress" = "progress" WHERE "id" = ${k.id}`;
+    } else {
+      if (k.table === 'QueueItem') await tx.$queryRaw`SELECT 1 FROM "QueueItem" WHERE "id" = ${k.id} FOR NO KEY UPDATE`;
+      else if (k.table === 'Project') await tx.$queryRaw`SELECT 1 FROM "Project" WHERE "id" = ${k.id} FOR NO KEY UPDATE`;
+      else await tx.$queryRaw`SELECT 1 FROM "Fit" WHERE "id" = ${k.id} FOR NO KEY UPDATE`;
+    }
   }
 }
 
@@ -140,7 +154,7 @@ export async function writeTx<T>(db: Db, lockKeys: readonly LockKey[], fn: (tx: 
   const keys = sqlite && lockKeys.length === 0 && options.sqliteLock ? [options.sqliteLock] : lockKeys;
   const once = () =>
     db.$transaction(async (tx) => {
-      await lockRows(tx, keys);
+      await lockRows(tx, keys, sqlite);
       return fn(tx);
     }, TX_OPTIONS);
   let lastError: unknown;
