@@ -494,6 +494,8 @@ async function main(): Promise<void> {
       const voteLat: number[] = [];
       let errors = 0;
       let refused = 0;
+      /** "next" answered "nothing to review" (the queue of 2,000 items never runs dry in these phases) */
+      let empty = 0;
       let votesHere = 0;
       const deadline = performance.now() + seconds * 1000;
       // The load generator's own event loop: a stall here would be counted as request latency.
@@ -514,6 +516,7 @@ async function main(): Promise<void> {
             }
             const item = n.json.data?.item;
             if (!item) {
+              empty++;
               await new Promise((res) => setTimeout(res, 200));
               continue;
             }
@@ -539,7 +542,7 @@ async function main(): Promise<void> {
         const slowest = nextLat.map((ms, i) => ({ ms, at: nextAt[i] })).sort((a, b) => b.ms - a.ms).slice(0, 15);
         console.log(`    slowest "next" (started at ms into the phase → took ms): ${slowest.map((x) => `${x.at.toFixed(0)}→${x.ms.toFixed(0)}`).join(', ')}`);
       }
-      return { next: summary(nextLat), vote: summary(voteLat), votes: votesHere, refused, errors, seconds, thinkMs, clientLoopMaxMs };
+      return { next: summary(nextLat), vote: summary(voteLat), votes: votesHere, refused, empty, errors, seconds, thinkMs, clientLoopMaxMs };
     };
     const THINK_MS = Number(process.env.BENCH_THINK_MS ?? 1500);
     const STRESS_SECONDS = Number(process.env.BENCH_STRESS_SECONDS ?? 10);
@@ -663,8 +666,8 @@ async function main(): Promise<void> {
       row(`vote, ${REVIEWERS} reviewers, no reading time (stress)`, stress.vote, '');
     }
     console.log(
-      `\nload: paced ${paced.votes} votes, ${paced.refused} conflicts (409), ${paced.errors} errors` +
-        (stress ? `; stress ${stress.votes} votes, ${stress.refused} conflicts, ${stress.errors} errors` : '') +
+      `\nload: paced ${paced.votes} votes, ${paced.refused} conflicts (409), ${paced.empty} "nothing to review", ${paced.errors} errors` +
+        (stress ? `; stress ${stress.votes} votes, ${stress.refused} conflicts, ${stress.empty} "nothing to review", ${stress.errors} errors` : '') +
         (IMPORT_ROWS > 0 ? `; imports ${imports.accepted} accepted, ${imports.errors} errors${imports.failures[0] ? ` (${imports.failures[0]})` : ''}` : '') +
         `; invariants ${problems.length === 0 ? 'hold' : `FAIL: ${problems.slice(0, 5).join('; ')}`}`,
     );

@@ -11,6 +11,7 @@ import { createDb, type Db } from '@/lib/server/db';
 import { writeTx } from '@/lib/server/queue/tx';
 import { castVote } from '@/lib/server/queue/vote';
 import { settleDeferredApplies } from '@/lib/server/queue/apply';
+import { claimNext } from '@/lib/server/queue/claim';
 import { createTestDatabase, TEST_PROVIDER, type TestDatabase } from './db-harness';
 import { createItems, createQueueFixture, type QueueFixture } from './queue-fixtures';
 
@@ -66,6 +67,25 @@ describe.skipIf(TEST_PROVIDER !== 'postgresql')('writeTx row locks on PostgreSQL
     await voting;
     await settleDeferredApplies();
     expect(seenWhileHeld).toEqual(['recorded', 'closed']);
+  });
+
+  it('"next" during a refit\'s queue rebuild waits for it instead of answering "nothing to review"', async () => {
+    // The completing transaction of a refit rescores every item awaiting votes (build.ts) and holds
+    // their rows until it commits; the claim passes over rows locked by other claims (SKIP LOCKED).
+    const fresh = await createQueueFixture(a, { samples: 5 });
+    await createItems(a, fresh);
+    const rescored = signal();
+    const rebuild = a.$transaction(async (tx) => {
+      await tx.$executeRaw`UPDATE "QueueItem" SET "suspicion" = "suspicion" + 1 WHERE "projectId" = ${fresh.projectId}`;
+      rescored.fire();
+      await new Promise((r) => setTimeout(r, 300));
+    });
+    await rescored.promise;
+    const claimed = await claimNext({ db: b }, fresh.scope, fresh.reviewers[0], { projectId: fresh.projectId });
+    await rebuild;
+    expect(claimed).not.toBeNull();
+    const item = await a.queueItem.findUniqueOrThrow({ where: { id: claimed?.itemId ?? '' }, select: { projectId: true, leaseUserId: true } });
+    expect(item).toEqual({ projectId: fresh.projectId, leaseUserId: fresh.reviewers[0].userId });
   });
 
   it('a row lock still makes a second transaction on the same item wait for the first', async () => {

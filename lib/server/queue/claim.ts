@@ -6,7 +6,8 @@
  *   expiry has passed. Choosing and taking it is one UPDATE whose subquery picks the item
  *   (`candidate`), so of two reviewers racing for the same item exactly one gets it, on SQLite and
  *   on PostgreSQL; the other gets the next candidate. A claim is two statements in one short
- *   transaction on SQLite, one statement on PostgreSQL (see `claimInProject`): "next" is the
+ *   transaction on SQLite, one statement on PostgreSQL (a second only when the first finds nothing,
+ *   see `claimPostgres`; `claimInProject`): "next" is the
  *   hottest request of the queue.
  * - Claiming again while holding a live lease returns the same item and extends the lease (a
  *   reload, or the screen's periodic renewal, does not lose the item).
@@ -64,7 +65,14 @@ async function claimInProject(deps: QueueDeps, scope: TeamScope, projectId: stri
   const until = new Date(now.getTime() + QUEUE_TIMING.leaseSeconds * 1000);
   const undoStart = new Date(now.getTime() - QUEUE_TIMING.undoSeconds * 1000);
   const args: TakeArgs = { projectId, teamId: scope.teamId, me, skip: skipItemId ?? '', now, until, undoStart };
-  const id = providerOf(db) === 'postgresql' ? await claimPostgres(db, args) : await claimSqlite(db, args);
+  let id: string | null;
+  if (providerOf(db) === 'postgresql') {
+    // Rows locked by someone else are passed over first; only if that leaves nothing does the claim
+    // wait for them (see claimPostgres).
+    id = (await claimPostgres(db, args, 'skip-locked')) ?? (await claimPostgres(db, args, 'wait'));
+  } else {
+    id = await claimSqlite(db, args);
+  }
   return id === null ? null : { itemId: id, leaseExpiresAt: until };
 }
 
@@ -132,13 +140,24 @@ async function claimSqlite(db: Db, a: TakeArgs): Promise<string | null> {
   });
 }
 
-async function claimPostgres(db: Db, a: TakeArgs): Promise<string | null> {
+/**
+ * PostgreSQL's claim. `skip-locked`: a row locked by another transaction is passed over — the
+ * claims of reviewers racing for the head of the queue each take a different row without waiting.
+ * But a refit's completing transaction also holds rows: it rescores every item awaiting votes
+ * (build.ts) and keeps them locked until it commits (up to a few hundred ms on a 100k project);
+ * passing over all of them answered "nothing to review" while the queue was full. So when the
+ * skipping claim finds nothing, `wait` runs the same statement waiting for the locks; once the
+ * holder commits, each row is re-checked under the lock (READ COMMITTED) and one that no longer
+ * qualifies (taken, removed) is passed over.
+ */
+async function claimPostgres(db: Db, a: TakeArgs, locked: 'skip-locked' | 'wait'): Promise<string | null> {
   const updatedAt = new Date();
+  const lock = locked === 'skip-locked' ? Prisma.sql`FOR NO KEY UPDATE SKIP LOCKED` : Prisma.sql`FOR NO KEY UPDATE`;
   for (let attempt = 0; ; attempt++) {
     try {
       // Data-modifying CTEs run once each, on one snapshot; `released` never touches the taken row.
       const rows = await db.$queryRaw<{ id: string }[]>`
-        WITH picked AS (SELECT "id" FROM (SELECT ${candidate(a, Prisma.sql`FOR NO KEY UPDATE SKIP LOCKED`)} AS "id") c WHERE "id" IS NOT NULL),
+        WITH picked AS (SELECT "id" FROM (SELECT ${candidate(a, lock)} AS "id") c WHERE "id" IS NOT NULL),
         taken AS (
           UPDATE "QueueItem" SET "leaseUserId" = ${a.me}, "leaseExpiresAt" = ${a.until}, "updatedAt" = ${updatedAt}
           WHERE "id" IN (SELECT "id" FROM picked)
