@@ -56,16 +56,22 @@ export function isTransient(e: unknown): boolean {
 export async function lockRows(tx: DbTx, keys: readonly LockKey[], sqlite: boolean): Promise<void> {
   // Fixed order (table, id) so that two transactions never lock the same rows in opposite order.
   const sorted = [...keys].sort((a, b) => (a.table === b.table ? (a.id < b.id ? -1 : a.id > b.id ? 1 : 0) : a.table < b.table ? -1 : 1));
-  for (const k of sorted) {
-    if (sqlite) {
+  if (sqlite) {
+    for (const k of sorted) {
       if (k.table === 'QueueItem') await tx.$executeRaw`UPDATE "QueueItem" SET "round" = "round" WHERE "id" = ${k.id}`;
       else if (k.table === 'Project') await tx.$executeRaw`UPDATE "Project" SET "currentRevision" = "currentRevision" WHERE "id" = ${k.id}`;
       else await tx.$executeRaw`UPDATE "Fit" SET "progress" = "progress" WHERE "id" = ${k.id}`;
-    } else {
-      if (k.table === 'QueueItem') await tx.$queryRaw`SELECT 1 FROM "QueueItem" WHERE "id" = ${k.id} FOR NO KEY UPDATE`;
-      else if (k.table === 'Project') await tx.$queryRaw`SELECT 1 FROM "Project" WHERE "id" = ${k.id} FOR NO KEY UPDATE`;
-      else await tx.$queryRaw`SELECT 1 FROM "Fit" WHERE "id" = ${k.id} FOR NO KEY UPDATE`;
     }
+    return;
+  }
+  // PostgreSQL: one statement per table, rows locked in id order (the sort runs below the lock).
+  for (const table of ['Fit', 'Project', 'QueueItem'] as const) {
+    const ids = sorted.filter((k) => k.table === table).map((k) => k.id);
+    if (ids.length === 0) continue;
+    const list = Prisma.join(ids);
+    if (table === 'QueueItem') await tx.$queryRaw`SELECT 1 FROM "QueueItem" WHERE "id" IN (${list}) ORDER BY "id" FOR NO KEY UPDATE`;
+    else if (table === 'Project') await tx.$queryRaw`SELECT 1 FROM "Project" WHERE "id" IN (${list}) ORDER BY "id" FOR NO KEY UPDATE`;
+    else await tx.$queryRaw`SELECT 1 FROM "Fit" WHERE "id" IN (${list}) ORDER BY "id" FOR NO KEY UPDATE`;
   }
 }
 
