@@ -107,12 +107,16 @@ function gaussian(rng: RandomGenerator): number {
 
 // ───────────────────────── server mode (child process) ─────────────────────────
 
-/** The import sender's thread (see runImports): plain JavaScript, run with `eval`. */
+/** The import sender's thread (see startImportSender): plain JavaScript, run with `eval`. */
 const IMPORT_SENDER = `
 const { parentPort, workerData } = require('node:worker_threads');
 let stopped = false;
-parentPort.on('message', (m) => { if (m === 'stop') stopped = true; });
+let go;
+const started = new Promise((resolve) => (go = resolve));
+parentPort.on('message', (m) => { if (m === 'stop') stopped = true; if (m === 'go') go(); });
+parentPort.postMessage('ready');
 (async () => {
+  await started;
   for (const upload of workerData.uploads) {
     if (stopped) break;
     const s0 = performance.now();
@@ -619,37 +623,45 @@ async function main(): Promise<void> {
      * server latency. In a team the pipeline script and the reviewers' browsers are different
      * machines. The thread sends one file every IMPORT_EVERY_MS until told to stop.
      */
-    const runImports = (stop: () => boolean): Promise<void> =>
-      new Promise((resolve, reject) => {
-        const sender = new Worker(IMPORT_SENDER, {
-          eval: true,
-          workerData: {
-            everyMs: IMPORT_EVERY_MS,
-            uploads: importFiles.map((csv, n) => ({
-              url: `${base}/import?${new URLSearchParams({ team: team.id, project: importProject.id, user: lead.userId, file: `imp${n}.csv` })}`,
-              body: Buffer.from(csv, 'utf8'),
-            })),
-          },
-        });
-        const poll = setInterval(() => {
-          if (stop()) sender.postMessage('stop');
-        }, 100);
-        sender.on('message', (m: { status: number; ms: number; text: string }) => {
-          imports.latency.push(m.ms);
-          if (m.status === 200) imports.accepted++;
-          else {
-            imports.errors++;
-            imports.failures.push(`${m.status} ${m.text.slice(0, 200)}`);
-          }
-        });
-        sender.on('error', reject);
-        sender.on('exit', () => {
-          clearInterval(poll);
-          resolve();
-        });
+    const startImportSender = async (): Promise<{ go: (stop: () => boolean) => Promise<void> }> => {
+      const sender = new Worker(IMPORT_SENDER, {
+        eval: true,
+        workerData: {
+          everyMs: IMPORT_EVERY_MS,
+          uploads: importFiles.map((csv, n) => ({
+            url: `${base}/import?${new URLSearchParams({ team: team.id, project: importProject.id, user: lead.userId, file: `imp${n}.csv` })}`,
+            body: Buffer.from(csv, 'utf8'),
+          })),
+        },
       });
+      const exited = new Promise<void>((resolve, reject) => {
+        sender.on('error', reject);
+        sender.on('exit', () => resolve());
+      });
+      // Started (and its copy of the files made) before the phase: starting a thread takes the generator's loop too.
+      await new Promise<void>((resolve) => sender.once('message', () => resolve()));
+      sender.on('message', (m: { status: number; ms: number; text: string }) => {
+        imports.latency.push(m.ms);
+        if (m.status === 200) imports.accepted++;
+        else {
+          imports.errors++;
+          imports.failures.push(`${m.status} ${m.text.slice(0, 200)}`);
+        }
+      });
+      return {
+        go: async (stop) => {
+          sender.postMessage('go');
+          const poll = setInterval(() => {
+            if (stop()) sender.postMessage('stop');
+          }, 100);
+          await exited;
+          clearInterval(poll);
+        },
+      };
+    };
     let pacedOver = false;
-    const importing = IMPORT_ROWS > 0 ? runImports(() => pacedOver) : Promise.resolve();
+    const sender = IMPORT_ROWS > 0 ? await startImportSender() : null;
+    const importing = sender ? sender.go(() => pacedOver) : Promise.resolve();
     if (IMPORT_ROWS > 0) console.log(`  imports during the paced phase: ${IMPORT_ROWS} × ${COLS} CSV every ${IMPORT_EVERY_MS} ms into a second project (${JOBS})`);
     const paced = await runLoad(SECONDS, THINK_MS, VOTES_PER_REVIEWER, RAMP_MS);
     pacedOver = true;
