@@ -6,9 +6,8 @@
  *   expiry has passed. Choosing and taking it is one UPDATE whose subquery picks the item
  *   (`candidate`), so of two reviewers racing for the same item exactly one gets it, on SQLite and
  *   on PostgreSQL; the other gets the next candidate. A claim is two statements in one short
- *   transaction on SQLite, one statement on PostgreSQL (a second only when the first finds nothing,
- *   see `claimPostgres`; `claimInProject`): "next" is the
- *   hottest request of the queue.
+ *   transaction on SQLite, one statement on PostgreSQL (a second only when the first finds
+ *   nothing, see `claimPostgres`): "next" is the hottest request of the queue.
  * - Claiming again while holding a live lease returns the same item and extends the lease (a
  *   reload, or the screen's periodic renewal, does not lose the item).
  * - Only items awaiting votes are handed out (open, one-vote), never one the caller has voted on,
@@ -54,8 +53,8 @@ export async function claimNext(
  *   and the take are atomic.
  * - PostgreSQL: one statement, no interactive transaction (whose BEGIN / COMMIT round trips held a
  *   pooled connection while reviewers queued): the candidate row is locked `FOR NO KEY UPDATE
- *   SKIP LOCKED` (the claim changes no key; see tx.ts on lock strengths), so reviewers racing for the head of the queue each lock a different row instead of
- *   waiting for one another; a row leased meanwhile by a committed claim is re-checked against the
+ *   SKIP LOCKED` (the claim changes no key; see tx.ts on lock strengths), so reviewers racing for
+ *   the head of the queue each lock a different row instead of waiting for one another; a row leased meanwhile by a committed claim is re-checked against the
  *   conditions under the lock (READ COMMITTED) and passed over. Of racing reviewers exactly one
  *   gets each item.
  */

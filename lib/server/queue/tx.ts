@@ -68,10 +68,8 @@ export async function lockRows(tx: DbTx, keys: readonly LockKey[], sqlite: boole
   for (const table of ['Fit', 'Project', 'QueueItem'] as const) {
     const ids = sorted.filter((k) => k.table === table).map((k) => k.id);
     if (ids.length === 0) continue;
-    const list = Prisma.join(ids);
-    if (table === 'QueueItem') await tx.$queryRaw`SELECT 1 FROM "QueueItem" WHERE "id" IN (${list}) ORDER BY "id" FOR NO KEY UPDATE`;
-    else if (table === 'Project') await tx.$queryRaw`SELECT 1 FROM "Project" WHERE "id" IN (${list}) ORDER BY "id" FOR NO KEY UPDATE`;
-    else await tx.$queryRaw`SELECT 1 FROM "Fit" WHERE "id" IN (${list}) ORDER BY "id" FOR NO KEY UPDATE`;
+    // `table` is one of the three literal names above, never input.
+    await tx.$queryRaw`SELECT 1 FROM ${Prisma.raw(`"${table}"`)} WHERE "id" IN (${Prisma.join(ids)}) ORDER BY "id" FOR NO KEY UPDATE`;
   }
 }
 
