@@ -10,6 +10,7 @@ import { claimNext, releaseLease } from '@/lib/server/queue/claim';
 import { castVote } from '@/lib/server/queue/vote';
 import { itemForReviewer } from '@/lib/server/queue/view';
 import { nextForReviewer } from '@/lib/server/queue/next';
+import { packDetail } from '@/lib/server/fits/standings-store';
 
 let t: TestDatabase;
 let db: Db;
@@ -197,5 +198,50 @@ describe('what "next" reads with the item (one statement) and caches by data rev
     const again = await nextForReviewer(deps, f.scope, a, { projectId: f.projectId });
     expect(again?.itemId).toBe(first?.itemId);
     expect(again?.classes).toEqual(['refund', 'shipping', 'account', 'billing']);
+  });
+
+  it('"next" shows the sample\'s newest standing of a done fit — highest revision, then the newer fit — the same view as reading the item afterwards', async () => {
+    // On PostgreSQL the claim statement reads the standing itself (claim.ts, view.ts
+    // `reviewItemWithStandingSql`); on SQLite `standingOf` picks it. Hand-made fits, so the answer is
+    // known: revision 2 failed (ignored), revision 1 has two done fits (the later one wins), revision 0 is older.
+    const f = await createQueueFixture(db, { samples: 2, classes: ['refund', 'shipping', 'account'] });
+    const [top] = await createItems(db, f);
+    const item = await db.queueItem.findUniqueOrThrow({ where: { id: top } });
+    const revisions = new Map<number, string>();
+    revisions.set(0, (await db.revision.findFirstOrThrow({ where: { projectId: f.projectId, number: 0 } })).id);
+    for (const n of [1, 2]) revisions.set(n, (await db.revision.create({ data: { projectId: f.projectId, number: n, kind: 'review' } })).id);
+    const metrics = JSON.stringify({ classes: f.classes, nearBand: 1 });
+    const fit = async (revisionNumber: number, status: string, createdAt: string, margin: number) => {
+      const created = await db.fit.create({
+        data: { projectId: f.projectId, revisionId: revisions.get(revisionNumber) as string, revisionNumber, status, settings: '{}', metrics, createdAt: new Date(createdAt) },
+      });
+      await db.standing.create({
+        data: {
+          fitId: created.id, sampleId: item.sampleId, margin, distance: margin, slack: 0, alpha: 0, svKind: 'none', oofMargin: null,
+          flags: 'near-boundary', suspicion: 0.5, predicted: 'refund', detail: packDetail([margin, -0.5, -0.9], null),
+        },
+      });
+      return created.id;
+    };
+    // Inserted out of order, so that neither insertion order nor id order gives the answer.
+    const later = await fit(1, 'done', '2030-01-01T08:05:00.000Z', 0.3);
+    await fit(1, 'done', '2030-01-01T08:00:00.000Z', 0.2);
+    await fit(2, 'failed', '2030-01-01T08:10:00.000Z', 0.4);
+    await fit(0, 'done', '2030-01-01T07:00:00.000Z', 0.1);
+    const [a] = f.reviewers;
+    const deps = { db, clock: manualClock() };
+    const next = await nextForReviewer(deps, f.scope, a, { projectId: f.projectId });
+    expect(next?.itemId).toBe(top);
+    expect(next?.standing?.fitId).toBe(later);
+    expect(next?.standing?.fitRevision).toBe(1);
+    expect(next?.standing?.margin).toBeCloseTo(0.3, 12);
+    expect(next?.standing?.flags).toEqual(['near-boundary']);
+    expect(next?.leaseExpiresAt).toBe('2030-01-01T09:01:30.000Z');
+    expect(next).toEqual(await itemForReviewer(deps, f.scope, a, f.projectId, top));
+    // A sample without any standing: none shown.
+    await db.standing.deleteMany({ where: { sampleId: item.sampleId } });
+    const bare = await nextForReviewer(deps, f.scope, a, { projectId: f.projectId });
+    expect(bare?.itemId).toBe(top);
+    expect(bare?.standing).toBeNull();
   });
 });

@@ -7,7 +7,7 @@
 import type { TeamScope } from '../authz/scope';
 import { claimNext } from './claim';
 import type { Actor, QueueDeps } from './context';
-import { itemForReviewer, type ReviewItemView } from './view';
+import { itemForReviewer, reviewItemFromRow, type ReviewItemView } from './view';
 import { traced } from '../trace';
 
 /**
@@ -25,5 +25,7 @@ export const SCREEN_NEIGHBOUR_WAIT_MS = 60;
 export async function nextForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, input: { projectId: string; skipItemId?: string }): Promise<ReviewItemView | null> {
   const claimed = await traced('next.claim', () => claimNext(deps, scope, actor, input));
   if (!claimed) return null;
-  return traced('next.view', () => itemForReviewer(deps, scope, actor, input.projectId, claimed.itemId));
+  // On PostgreSQL the claim statement read the item already (claim.ts `claimPostgres`).
+  const view = claimed.view;
+  return traced('next.view', () => (view ? reviewItemFromRow(deps, actor, input.projectId, view) : itemForReviewer(deps, scope, actor, input.projectId, claimed.itemId)));
 }

@@ -144,7 +144,11 @@ export async function standingOf(db: Db, sampleId: string, label: string, fallba
     if (!st || Number(r.revisionNumber) > Number(st.revisionNumber)) st = r;
     else if (Number(r.revisionNumber) === Number(st.revisionNumber) && (await fitCreatedAt(db, r.fitId)) > (await fitCreatedAt(db, st.fitId))) st = r;
   }
-  if (!st) return null;
+  return st ? standingViewOf(db, st, label, fallbackNearBand) : null;
+}
+
+/** A stored standing row in words, with its fit's class list and near band (cached per fit). */
+async function standingViewOf(db: Db, st: StandingRow, label: string, fallbackNearBand: number): Promise<StandingView | null> {
   const facts = await fitFacts(db, st.fitId, fallbackNearBand);
   const detail = unpackDetail(st.detail);
   const flags = flagsOf(st.flags);
@@ -261,7 +265,8 @@ async function prefetchUpcoming(db: Db, m: FeatureMatrix, scaling: Scaling, now:
   prefetchNeighbours(m, scaling, rows);
 }
 
-interface ItemRow {
+/** A row of the reviewer screen's item read (`reviewItemSql`). */
+export interface ItemRow {
   readonly id: string;
   readonly round: number | bigint;
   readonly reasons: string;
@@ -282,25 +287,87 @@ interface ItemRow {
   readonly dataRevisionAt: Date | string | number | null;
 }
 
+/** An item row with the sample's newest standing (`st*` columns, all null when it has none): PostgreSQL's claim statement. */
+export interface ItemRowWithStanding extends ItemRow {
+  readonly stFitId: string | null;
+  readonly stMargin: number | null;
+  readonly stDistance: number | null;
+  readonly stFlags: string | null;
+  readonly stSuspicion: number | null;
+  readonly stDetail: Uint8Array | null;
+  readonly stRevisionNumber: number | bigint | null;
+}
+
+/**
+ * The item read of the reviewer screen as one SELECT: the queue item (from `items`, a relation with
+ * QueueItem's columns — the table itself, or the rows a claim statement just updated), its sample,
+ * the project's settings and the project's data revision key (which says whether the cached
+ * feature matrix and class list are current), filtered by `where` over `q`, `s` and `p`.
+ */
+export function reviewItemSql(items: Prisma.Sql, where: Prisma.Sql): Prisma.Sql {
+  return Prisma.sql`SELECT q."id", q."round", q."reasons", q."suspicion", q."leaseUserId", q."leaseExpiresAt", q."sampleId",
+        s."externalId", s."text", s."imageRef", s."metadata", s."currentLabel", s."labelRevision", p."settings",
+        ${dataRevisionKeyColumns(Prisma.sql`q."projectId"`)}
+      FROM ${items} q JOIN "Sample" s ON s."id" = q."sampleId" JOIN "Project" p ON p."id" = q."projectId"
+      WHERE ${where}`;
+}
+
+/**
+ * PostgreSQL only (LATERAL): `reviewItemSql` with the sample's newest standing among done fits —
+ * highest revision, then the newer fit — as `st*` columns, so that "next" reads the item and its
+ * standing in its claim statement. (SQLite has no LATERAL, and there Fit.createdAt sits behind the
+ * model blob: `standingOf` picks the fit in code.)
+ */
+export function reviewItemWithStandingSql(items: Prisma.Sql): Prisma.Sql {
+  return Prisma.sql`SELECT i.*, st."fitId" AS "stFitId", st."margin" AS "stMargin", st."distance" AS "stDistance",
+        st."flags" AS "stFlags", st."suspicion" AS "stSuspicion", st."detail" AS "stDetail", st."revisionNumber" AS "stRevisionNumber"
+      FROM (${reviewItemSql(items, Prisma.sql`TRUE`)}) i
+      LEFT JOIN LATERAL (
+        SELECT st."fitId", st."margin", st."distance", st."flags", st."suspicion", st."detail", f."revisionNumber"
+        FROM "Standing" st JOIN "Fit" f ON f."id" = st."fitId"
+        WHERE st."sampleId" = i."sampleId" AND f."status" = 'done'
+        ORDER BY f."revisionNumber" DESC, f."createdAt" DESC LIMIT 1) st ON TRUE`;
+}
+
+/** The standing columns of an `ItemRowWithStanding`: the row `standingOf` would have picked, or null. */
+function standingColumns(row: ItemRowWithStanding): StandingRow | null {
+  if (row.stFitId === null) return null;
+  return {
+    fitId: row.stFitId,
+    margin: Number(row.stMargin),
+    distance: Number(row.stDistance),
+    flags: row.stFlags ?? '',
+    suspicion: Number(row.stSuspicion),
+    detail: row.stDetail,
+    revisionNumber: row.stRevisionNumber ?? 0,
+  };
+}
+
 /**
  * The item the caller holds the lease on, as the reviewer screen shows it (no votes).
  *
- * One statement reads the item, its sample, the project's settings and its data revision key
- * (which says whether the cached feature matrix and class list are current), checked against the
- * caller's scope (an item of another team's project is "not found"). The standing and the
- * neighbours are then read side by side: two sequential round trips after the claim, three
- * statements in all (the class list is read again only after an import).
+ * One statement reads the item (`reviewItemSql`), checked against the caller's scope (an item of
+ * another team's project is "not found"). The standing and the neighbours are then read side by
+ * side: two sequential round trips after the claim, three statements in all (the class list is
+ * read again only after an import). On PostgreSQL "next" reads the item and its standing in the
+ * claim statement itself and goes straight to `reviewItemFromRow`.
  */
 export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: Actor, projectId: string, itemId: string): Promise<ReviewItemView> {
-  const { db } = deps;
-  const rows = await traced('view.item', () => db.$queryRaw<ItemRow[]>`
-      SELECT q."id", q."round", q."reasons", q."suspicion", q."leaseUserId", q."leaseExpiresAt", q."sampleId",
-        s."externalId", s."text", s."imageRef", s."metadata", s."currentLabel", s."labelRevision", p."settings",
-        ${dataRevisionKeyColumns(Prisma.sql`q."projectId"`)}
-      FROM "QueueItem" q JOIN "Sample" s ON s."id" = q."sampleId" JOIN "Project" p ON p."id" = q."projectId"
-      WHERE q."id" = ${itemId} AND q."projectId" = ${projectId} AND p."teamId" = ${scope.teamId}`);
+  const rows = await traced('view.item', () =>
+    deps.db.$queryRaw<ItemRow[]>(reviewItemSql(Prisma.sql`"QueueItem"`, Prisma.sql`q."id" = ${itemId} AND q."projectId" = ${projectId} AND p."teamId" = ${scope.teamId}`)),
+  );
   const item = rows[0];
   if (!item) throw notFound();
+  return reviewItemFromRow(deps, actor, projectId, item);
+}
+
+/**
+ * The reviewer screen's view of an item row: the feature matrix (cached), the class list (cached
+ * per data revision), the standing (from the row when it carries one, else `standingOf`) and the
+ * neighbours (the cached search, or one within the caller's wait) side by side.
+ */
+export async function reviewItemFromRow(deps: QueueDeps, actor: Actor, projectId: string, item: ItemRow | ItemRowWithStanding): Promise<ReviewItemView> {
+  const { db } = deps;
   const revisionKey = formatDataRevisionKey(item.dataRevisionNumber, item.dataRevisionAt);
   const settings = readProjectSettings(item.settings);
   const sample: SampleView = {
@@ -312,10 +379,15 @@ export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: 
     currentLabel: item.currentLabel,
     labelRevision: Number(item.labelRevision),
   };
+  const standingRead = (): Promise<StandingView | null> => {
+    if (!('stFitId' in item)) return standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand);
+    const st = standingColumns(item);
+    return st ? standingViewOf(db, st, sample.currentLabel, settings.nearBand) : Promise.resolve(null);
+  };
   const matrix = await traced('view.matrix', () => featureMatrixForReading(db, projectId, revisionKey));
   const [classes, standing, neighbours] = await Promise.all([
     traced('view.classes', () => classNamesAt(db, projectId, revisionKey)),
-    traced('view.standing', () => standingOf(db, item.sampleId, sample.currentLabel, settings.nearBand)),
+    traced('view.standing', standingRead),
     traced('view.neighbours', () => neighboursOf(db, matrix, item.sampleId, settings.scale, deps.neighbourWaitMs)),
   ]);
   void prefetchUpcoming(db, matrix, settings.scale, nowOf(deps)).catch(() => undefined);
