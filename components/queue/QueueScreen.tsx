@@ -25,8 +25,14 @@ interface Toast {
 
 const LEASE_RENEW_MS = 60_000;
 /** Follow-up requests for an item's nearest samples when the first answer came without them. */
+/**
+ * Asking again for an item answered without its neighbours: after 0.4 s, then 1.5× longer each
+ * time up to 4 s, 14 times (about 40 s in all) — long enough for a server that has just started
+ * to read a large project's feature matrix (about 12 s for 100,000 × 256).
+ */
 const NEIGHBOUR_RETRY_MS = 400;
-const NEIGHBOUR_TRIES = 10;
+const NEIGHBOUR_RETRY_MAX_MS = 4000;
+const NEIGHBOUR_TRIES = 14;
 
 function imageUrl(projectId: string, ref: string): string | null {
   if (/^https?:\/\//i.test(ref)) return ref;
@@ -130,8 +136,9 @@ export function QueueScreen({
     const t = neighbourTries.current;
     if (t.itemId !== item.itemId) neighbourTries.current = { itemId: item.itemId, tries: 0 };
     if (neighbourTries.current.tries >= NEIGHBOUR_TRIES) return;
+    const delay = Math.min(NEIGHBOUR_RETRY_MAX_MS, NEIGHBOUR_RETRY_MS * 1.5 ** neighbourTries.current.tries);
     neighbourTries.current.tries++;
-    const id = setTimeout(() => void next(), NEIGHBOUR_RETRY_MS);
+    const id = setTimeout(() => void next(), delay);
     return () => clearTimeout(id);
   }, [neighboursMissing, item, busy, next]);
 

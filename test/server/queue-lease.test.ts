@@ -5,7 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestDatabase, type TestDatabase } from './db-harness';
 import { createItems, createQueueFixture, manualClock, refusedWith } from './queue-fixtures';
 import { Prisma, type Db } from '@/lib/server/db';
-import { dataRevisionKey, dataRevisionKeyColumns, formatDataRevisionKey } from '@/lib/server/fits/data';
+import { dataRevisionKey, dataRevisionKeyColumns, featureMatrixForReading, formatDataRevisionKey } from '@/lib/server/fits/data';
 import { claimNext, releaseLease } from '@/lib/server/queue/claim';
 import { castVote } from '@/lib/server/queue/vote';
 import { itemForReviewer } from '@/lib/server/queue/view';
@@ -156,6 +156,59 @@ describe('"next" with a wait for neighbours (QueueDeps.neighbourWaitMs, the revi
     // The same five as without a wait (services and tests wait for the search).
     const waited = await nextForReviewer({ db, clock }, f.scope, a, input);
     expect(again?.neighbours).toEqual(waited?.neighbours);
+  });
+});
+
+describe('"next" before the feature matrix is in memory (a just-started server)', () => {
+  it('with a wait budget: the item and its standing come at once without neighbours; once the matrix is read, with them', async () => {
+    const f = await createQueueFixture(db, { samples: 12 });
+    const [top] = await createItems(db, f);
+    const [a] = f.reviewers;
+    const clock = manualClock();
+    const input = { projectId: f.projectId };
+    // A matrix read that takes as long as the test says (seconds for 100k × 256 in production).
+    let release: () => void = () => undefined;
+    const held = new Promise<void>((resolve) => (release = resolve));
+    let reads = 0;
+    const slowMatrix = async (d: Db, projectId: string, revisionKey: string) => {
+      reads++;
+      await held;
+      return featureMatrixForReading(d, projectId, revisionKey);
+    };
+    const deps = { db, clock, neighbourWaitMs: 30, featureMatrix: slowMatrix };
+    const timeout = new Promise<'timed out'>((resolve) => setTimeout(() => resolve('timed out'), 5000));
+    const first = await Promise.race([nextForReviewer(deps, f.scope, a, input), timeout]);
+    if (first === 'timed out' || first === null) throw new Error(`"next" answered ${String(first)}`);
+    expect(first.itemId).toBe(top);
+    expect(first.neighbours).toBeNull();
+    expect(first.classes).toEqual(f.classes);
+    expect(first.leaseExpiresAt).toBe('2030-01-01T09:01:30.000Z');
+    expect(reads).toBe(1);
+    release();
+    const waited = await nextForReviewer({ db, clock }, f.scope, a, input);
+    let again = await nextForReviewer(deps, f.scope, a, input);
+    for (let k = 0; k < 200 && again?.neighbours === null; k++) {
+      await new Promise((r) => setTimeout(r, 25));
+      again = await nextForReviewer(deps, f.scope, a, input);
+    }
+    expect(again?.itemId).toBe(top);
+    expect(again?.neighbours).toHaveLength(5);
+    expect(again?.neighbours).toEqual(waited?.neighbours);
+  });
+
+  it('without a wait budget (services, scripts): "next" waits for the matrix and answers with the neighbours', async () => {
+    const f = await createQueueFixture(db, { samples: 12 });
+    await createItems(db, f);
+    const [a] = f.reviewers;
+    let finished = false;
+    const slowMatrix = async (d: Db, projectId: string, revisionKey: string) => {
+      await new Promise((r) => setTimeout(r, 100));
+      finished = true;
+      return featureMatrixForReading(d, projectId, revisionKey);
+    };
+    const view = await nextForReviewer({ db, clock: manualClock(), featureMatrix: slowMatrix }, f.scope, a, { projectId: f.projectId });
+    expect(finished).toBe(true);
+    expect(view?.neighbours).toHaveLength(5);
   });
 });
 

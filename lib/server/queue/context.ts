@@ -7,6 +7,7 @@ import type { Role } from '../../domain';
 import type { TeamScope } from '../authz/scope';
 import type { Db, DbTx } from '../db';
 import { notFound } from '../authz/errors';
+import type { FeatureMatrix } from '../fits/data';
 
 export type Clock = () => Date;
 export const systemClock: Clock = () => new Date();
@@ -20,11 +21,15 @@ export interface QueueDeps {
   readonly db: Db;
   readonly clock?: Clock;
   /**
-   * How long "next" waits for a nearest-neighbour search that is not cached yet (view.ts); past it
-   * the item is answered with `neighbours: null` and the search goes on, its result cached for the
-   * screen's follow-up request. Unset: wait for the search (services, tests, scripts).
+   * How long "next" waits for its item's nearest neighbours when they are not at hand — the
+   * project's feature matrix not yet in memory (read once per server process and data revision:
+   * seconds for 100k × 256) and the search not cached (view.ts); past it the item is answered with
+   * `neighbours: null` while the read and the search go on, their results cached for the screen's
+   * follow-up request. Unset: wait for both (services, tests, scripts).
    */
   readonly neighbourWaitMs?: number;
+  /** Where the item read gets the feature matrix; default `featureMatrixForReading` (tests substitute a slow one). */
+  readonly featureMatrix?: (db: Db, projectId: string, revisionKey: string) => Promise<FeatureMatrix>;
 }
 
 export function nowOf(deps: QueueDeps): Date {

@@ -362,9 +362,9 @@ export async function itemForReviewer(deps: QueueDeps, scope: TeamScope, actor: 
 }
 
 /**
- * The reviewer screen's view of an item row: the feature matrix (cached), the class list (cached
- * per data revision), the standing (from the row when it carries one, else `standingOf`) and the
- * neighbours (the cached search, or one within the caller's wait) side by side.
+ * The reviewer screen's view of an item row: the class list (cached per data revision), the
+ * standing (from the row when it carries one, else `standingOf`) and the neighbours (feature matrix
+ * and search, each from memory or within the caller's wait) side by side.
  */
 export async function reviewItemFromRow(deps: QueueDeps, actor: Actor, projectId: string, item: ItemRow | ItemRowWithStanding): Promise<ReviewItemView> {
   const { db } = deps;
@@ -384,13 +384,25 @@ export async function reviewItemFromRow(deps: QueueDeps, actor: Actor, projectId
     const st = standingColumns(item);
     return st ? standingViewOf(db, st, sample.currentLabel, settings.nearBand) : Promise.resolve(null);
   };
-  const matrix = await traced('view.matrix', () => featureMatrixForReading(db, projectId, revisionKey));
+  // The neighbours need the feature matrix; with a wait budget (the screen) neither its read nor
+  // the search holds the answer up past the budget (QueueDeps.neighbourWaitMs).
+  const waitMs = deps.neighbourWaitMs;
+  const deadline = performance.now() + (waitMs ?? 0);
+  const neighboursRead = async (): Promise<NeighbourView[] | null> => {
+    const read = (deps.featureMatrix ?? featureMatrixForReading)(db, projectId, revisionKey);
+    const matrix = await traced('view.matrix', () => (waitMs === undefined ? read : within(read, waitMs)));
+    if (matrix === null) {
+      record('next.matrixLater', 0);
+      return null;
+    }
+    void prefetchUpcoming(db, matrix, settings.scale, nowOf(deps)).catch(() => undefined);
+    return neighboursOf(db, matrix, item.sampleId, settings.scale, waitMs === undefined ? undefined : Math.max(0, deadline - performance.now()));
+  };
   const [classes, standing, neighbours] = await Promise.all([
     traced('view.classes', () => classNamesAt(db, projectId, revisionKey)),
     traced('view.standing', standingRead),
-    traced('view.neighbours', () => neighboursOf(db, matrix, item.sampleId, settings.scale, deps.neighbourWaitMs)),
+    traced('view.neighbours', neighboursRead),
   ]);
-  void prefetchUpcoming(db, matrix, settings.scale, nowOf(deps)).catch(() => undefined);
   return {
     itemId: item.id,
     round: Number(item.round),
