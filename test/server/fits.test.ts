@@ -9,7 +9,7 @@ import { InProcessFitQueue } from '@/lib/server/fits/in-process';
 import { setFitJobQueue } from '@/lib/server/fits/jobs';
 import { processProject, resetFitMemory, runClaimedFit, type ProcessOutcome } from '@/lib/server/fits/run-fit';
 import { decodeModel } from '@/lib/server/fits/model-codec';
-import { inlineStandingsWriter, workerStandingsWriter } from '@/lib/server/fits/standings-writer';
+import { inlineStandingsWriter, workerStandingsWriter, type StandingColumns } from '@/lib/server/fits/standings-writer';
 import { castVote } from '@/lib/server/queue/vote';
 import { createTestDatabase, TEST_PROVIDER, type TestDatabase } from './db-harness';
 import { PRUNE_RANGE_SQL } from '@/lib/server/fits/standings-keys';
@@ -393,6 +393,51 @@ describe('standings writers', () => {
       );
     }
     expect([...byWriter[1].entries()].sort()).toEqual([...byWriter[0].entries()].sort());
+  });
+});
+
+describe('the standings writers store the same rows', () => {
+  it('class names with tab, newline, carriage return and backslash, null and clamped numbers, detail bytes: the writer thread (COPY on PostgreSQL) stores what the inline INSERT stores', async () => {
+    const f = await twoClassProject();
+    const samples = (await db.sample.findMany({ where: { projectId: f.projectId }, orderBy: { id: 'asc' }, select: { id: true } })).slice(0, 5).map((x) => x.id);
+    const rev = await revision0(f);
+    const fitFor = async () => (await db.fit.create({ data: { projectId: f.projectId, revisionId: rev.id, revisionNumber: 0, status: 'done', settings: '{}' } })).id;
+    const n = samples.length;
+    // Hand-made values: every special character COPY's text format escapes, a value printed with an
+    // exponent, NaN (stored as null / 0), ±Infinity (clamped to ±1e30), a negative zero.
+    const columns: StandingColumns = {
+      sampleIds: samples,
+      classes: ['tab\there', 'line\nbreak', 'back\\slash \\N', 'cr\rend', 'plain'],
+      margin: Float64Array.from([0.1, -2.5e-12, NaN, Infinity, -0]),
+      distance: Float64Array.from([1 / 3, 1e300, -Infinity, 0, 7]),
+      slack: Float64Array.from([0, 0.25, 0, 1.5, 0]),
+      alpha: Float64Array.from([0, 1, 0.5, 0, 1e-9]),
+      support: Uint8Array.from([0, 1, 2, 0, 1]),
+      oofMargin: Float64Array.from([NaN, 0.5, -0.75, NaN, 1e-7]),
+      flags: Uint8Array.from([0, 1, 3, 7, 2]),
+      suspicion: Float64Array.from([0.9, 0.1, 0.5, 0, 1]),
+      predicted: Int32Array.from([0, 1, 2, 3, 4]),
+      detail: Float32Array.from([0.5, NaN, -1.25, 3, 0, 0, 1e-3, -7, 2, 2]),
+      detailWidth: 2,
+    };
+    const stored = async (fitId: string) =>
+      (await db.standing.findMany({ where: { fitId }, orderBy: { id: 'asc' } })).map((r) => ({ ...r, id: r.id.slice(fitId.length), fitId: null, detail: r.detail ? Buffer.from(r.detail).toString('hex') : null }));
+    const inlineFit = await fitFor();
+    const threadFit = await fitFor();
+    expect(await inlineStandingsWriter(db).write(inlineFit, columns)).toBe(n);
+    const thread = workerStandingsWriter(t.config);
+    expect(await thread.write(threadFit, columns)).toBe(n);
+    const a = await stored(inlineFit);
+    const b = await stored(threadFit);
+    expect(b).toEqual(a);
+    // And both are the values themselves (not merely the same as each other).
+    expect(a.map((r) => r.predicted)).toEqual(columns.classes);
+    // (negative zero is stored as zero by both: JavaScript prints -0 as "0", the INSERT's drivers send 0)
+    expect(a.map((r) => r.margin)).toEqual([0.1, -2.5e-12, 0, 1e30, 0]);
+    expect(a.map((r) => r.distance)).toEqual([1 / 3, 1e300, -1e30, 0, 7]);
+    expect(a.map((r) => r.oofMargin)).toEqual([null, 0.5, -0.75, null, 1e-7]);
+    const detail0 = new Float32Array(Uint8Array.from(Buffer.from(a[0].detail as string, 'hex')).buffer);
+    expect([...detail0].map((x) => (Number.isNaN(x) ? 'NaN' : x))).toEqual([0.5, 'NaN']);
   });
 });
 
