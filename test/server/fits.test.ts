@@ -221,6 +221,10 @@ describe('a fit', () => {
     const kept = await db.queueItem.findUnique({ where: { id: withVote.id } });
     expect(kept?.state).toBe('one-vote');
     expect(kept?.fitId).toBe(out?.fitId); // re-scored by the new fit
+    // …with the new fit's score of its sample (its stored standing), not the hand-set 0.01.
+    const standing = await db.standing.findFirstOrThrow({ where: { fitId: out?.fitId, sampleId: s10.id } });
+    expect(kept?.suspicion).toBe(standing.suspicion);
+    expect(kept?.suspicion).not.toBe(0.01);
     expect(await db.queueItem.findUnique({ where: { id: voteless.id } })).toBeNull();
   });
 

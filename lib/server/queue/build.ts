@@ -147,7 +147,24 @@ export async function rebuildQueueTx(tx: DbTx, input: RebuildInput): Promise<Reb
     removed = res.count;
   }
 
-  // Re-score what stays (one bulk UPDATE … FROM (VALUES …) per 500 items).
+  if (create.length > 0) {
+    await tx.queueItem.createMany({
+      data: create.map(({ candidate, round }) => ({
+        projectId,
+        sampleId: candidate.sampleId,
+        round,
+        fitId: input.fitId,
+        revisionNumber: input.revisionNumber,
+        state: 'open',
+        suspicion: candidate.suspicion,
+        reasons: candidate.reasons.join(','),
+        createdAt: now,
+      })),
+    });
+  }
+
+  // Re-score what stays, last: from here to the commit every item awaiting votes is locked, and
+  // reviewers' claims and votes on them wait (see bulkRescore).
   const updates: { id: string; suspicion: number; reasons: string }[] = [];
   const rescore = (it: Item, suspicion: number, reasons: readonly string[]) => {
     const joined = reasons.join(',');
@@ -164,25 +181,18 @@ export async function rebuildQueueTx(tx: DbTx, input: RebuildInput): Promise<Reb
   await bulkRescore(tx, input.provider, input.fitId, now, updates);
   const rescored = updates.length;
 
-  if (create.length > 0) {
-    await tx.queueItem.createMany({
-      data: create.map(({ candidate, round }) => ({
-        projectId,
-        sampleId: candidate.sampleId,
-        round,
-        fitId: input.fitId,
-        revisionNumber: input.revisionNumber,
-        state: 'open',
-        suspicion: candidate.suspicion,
-        reasons: candidate.reasons.join(','),
-        createdAt: now,
-      })),
-    });
-  }
   const awaiting = pinnedAwaiting + keepOpen.size + create.length;
   return { created: create.length, rescored, removed, kept: pinned.length + keepOpen.size, awaiting };
 }
 
+/**
+ * Writes the new scores of the items that stay. PostgreSQL: one `UPDATE … FROM unnest(ids,
+ * suspicions, reasons)` for all of them — 45 ms for 2,056 items on the bench's 100k project, idle
+ * machine, against 74–89 ms for the four 500-row `VALUES` statements it replaced; the rows it
+ * updates stay locked until the completing transaction commits, and a claim that finds every item
+ * locked waits (claim.ts), so this is the statement reviewers feel. SQLite: `VALUES` lists of 500
+ * (its variable limit), under the write lock that the whole transaction holds anyway.
+ */
 async function bulkRescore(
   tx: DbTx,
   provider: Provider,
@@ -190,33 +200,31 @@ async function bulkRescore(
   now: Date,
   updates: readonly { id: string; suspicion: number; reasons: string }[],
 ): Promise<void> {
+  if (updates.length === 0) return;
+  const finiteOr0 = (v: number) => (Number.isFinite(v) ? v : 0);
+  if (provider === 'postgresql') {
+    await tx.$executeRawUnsafe(
+      'UPDATE "QueueItem" AS q SET "suspicion" = v.s, "reasons" = v.r, "fitId" = $4, "updatedAt" = $5 ' +
+        'FROM unnest($1::text[], $2::double precision[], $3::text[]) AS v(id, s, r) WHERE q."id" = v.id',
+      updates.map((u) => u.id),
+      updates.map((u) => finiteOr0(u.suspicion)),
+      updates.map((u) => u.reasons),
+      fitId,
+      now,
+    );
+    return;
+  }
   for (let start = 0; start < updates.length; start += 500) {
     const slice = updates.slice(start, start + 500);
     const values: unknown[] = [];
-    const tuples: string[] = [];
-    for (const u of slice) {
-      const b = values.length;
-      tuples.push(provider === 'postgresql' ? `($${b + 1}, $${b + 2}::double precision, $${b + 3})` : '(?, ?, ?)');
-      values.push(u.id, Number.isFinite(u.suspicion) ? u.suspicion : 0, u.reasons);
-    }
-    const n = values.length;
-    if (provider === 'postgresql') {
-      await tx.$executeRawUnsafe(
-        `UPDATE "QueueItem" AS q SET "suspicion" = v.s, "reasons" = v.r, "fitId" = $${n + 1}, "updatedAt" = $${n + 2} ` +
-          `FROM (VALUES ${tuples.join(', ')}) AS v(id, s, r) WHERE q."id" = v.id`,
-        ...values,
-        fitId,
-        now,
-      );
-    } else {
-      await tx.$executeRawUnsafe(
-        `UPDATE "QueueItem" SET "suspicion" = v.column2, "reasons" = v.column3, "fitId" = ?, "updatedAt" = ? ` +
-          `FROM (VALUES ${tuples.join(', ')}) AS v WHERE "QueueItem"."id" = v.column1`,
-        fitId,
-        now,
-        ...values,
-      );
-    }
+    for (const u of slice) values.push(u.id, finiteOr0(u.suspicion), u.reasons);
+    await tx.$executeRawUnsafe(
+      `UPDATE "QueueItem" SET "suspicion" = v.column2, "reasons" = v.column3, "fitId" = ?, "updatedAt" = ? ` +
+        `FROM (VALUES ${slice.map(() => '(?, ?, ?)').join(', ')}) AS v WHERE "QueueItem"."id" = v.column1`,
+      fitId,
+      now,
+      ...values,
+    );
   }
 }
 
