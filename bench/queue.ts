@@ -136,6 +136,10 @@ parentPort.postMessage('ready');
 })();
 `;
 
+/** BENCH_VERBOSE: the server prints requests slower than BENCH_SLOW_MS (250) with their stages, and event-loop stalls over BENCH_STALL_MS (120). */
+const SLOW_MS = Number(process.env.BENCH_SLOW_MS ?? 250);
+const STALL_MS = Number(process.env.BENCH_STALL_MS ?? 120);
+
 async function serve(): Promise<void> {
   // The app's modules read DATABASE_URL on first use; the parent set it in our environment.
   const { runWithRequestContext } = await import('../lib/server/authz/context');
@@ -188,7 +192,7 @@ async function serve(): Promise<void> {
       // With BORDERLINE_QUEUE_TRACE: the whole action (authorization wrapper included) beside its stages.
       const took = performance.now() - t0;
       record(req.url === '/next' ? 'action.next' : 'action.vote', took);
-      if (process.env.BENCH_VERBOSE === '1' && took > 250 && stages.length > 0) {
+      if (process.env.BENCH_VERBOSE === '1' && took > SLOW_MS && stages.length > 0) {
         const parts = stages.map(([label, a, b]) => `${label} ${a.toFixed(0)}→${b.toFixed(0)}`).join(', ');
         process.stderr.write(`[server] slow ${req.url} ${took.toFixed(0)} ms at ${((t0 - serverStart) / 1000).toFixed(2)} s: ${parts}\n`);
       }
@@ -241,7 +245,7 @@ async function serve(): Promise<void> {
     let last = performance.now();
     setInterval(() => {
       const now = performance.now();
-      if (now - last > 120) process.stderr.write(`[server] event loop stalled ${(now - last - 20).toFixed(0)} ms at ${(now / 1000).toFixed(1)} s\n`);
+      if (now - last > STALL_MS) process.stderr.write(`[server] event loop stalled ${(now - last - 20).toFixed(0)} ms at ${((now - serverStart) / 1000).toFixed(2)} s\n`);
       last = now;
     }, 20).unref();
   }
