@@ -24,11 +24,11 @@ interface Toast {
 }
 
 const LEASE_RENEW_MS = 60_000;
-/** Follow-up requests for an item's nearest samples when the first answer came without them. */
 /**
- * Asking again for an item answered without its neighbours: after 0.4 s, then 1.5× longer each
- * time up to 4 s, 14 times (about 40 s in all) — long enough for a server that has just started
- * to read a large project's feature matrix (about 12 s for 100,000 × 256).
+ * Follow-up requests for an item's nearest samples when the first answer came without them: after
+ * 0.4 s, then 1.5× longer each time up to 4 s, 14 times (about 40 s in all) — long enough for a
+ * server that has just started to read a large project's feature matrix (about 12 s for
+ * 100,000 × 256).
  */
 const NEIGHBOUR_RETRY_MS = 400;
 const NEIGHBOUR_RETRY_MAX_MS = 4000;
