@@ -124,6 +124,13 @@ async function fitCreatedAt(db: Db, fitId: string): Promise<number> {
   return at;
 }
 
+/** The stored standings (`StandingRow` columns) of the sample given by the SQL expression `sampleId`, in done fits only. */
+function doneStandingsOfSql(sampleId: Prisma.Sql): Prisma.Sql {
+  return Prisma.sql`SELECT st."fitId", st."margin", st."distance", st."flags", st."suspicion", st."detail", f."revisionNumber"
+    FROM "Standing" st JOIN "Fit" f ON f."id" = st."fitId"
+    WHERE st."sampleId" = ${sampleId} AND f."status" = 'done'`;
+}
+
 /**
  * The newest stored standing of a sample among done fits, in words: highest revision, then the fit
  * requested last. Raw SQL, like the other reads on the "next" path (the ORM's cost per one-row read
@@ -135,10 +142,7 @@ async function fitCreatedAt(db: Db, fitId: string): Promise<number> {
  * revision (a quick pass and its follow-up full pass) comes from a per-fit memory.
  */
 export async function standingOf(db: Db, sampleId: string, label: string, fallbackNearBand: number): Promise<StandingView | null> {
-  const rows = await db.$queryRaw<StandingRow[]>`
-    SELECT st."fitId", st."margin", st."distance", st."flags", st."suspicion", st."detail", f."revisionNumber"
-    FROM "Standing" st JOIN "Fit" f ON f."id" = st."fitId"
-    WHERE st."sampleId" = ${sampleId} AND f."status" = 'done'`;
+  const rows = await db.$queryRaw<StandingRow[]>(doneStandingsOfSql(Prisma.sql`${sampleId}`));
   let st: StandingRow | undefined;
   for (const r of rows) {
     if (!st || Number(r.revisionNumber) > Number(st.revisionNumber)) st = r;
@@ -323,9 +327,7 @@ export function reviewItemWithStandingSql(items: Prisma.Sql): Prisma.Sql {
         st."flags" AS "stFlags", st."suspicion" AS "stSuspicion", st."detail" AS "stDetail", st."revisionNumber" AS "stRevisionNumber"
       FROM (${reviewItemSql(items, Prisma.sql`TRUE`)}) i
       LEFT JOIN LATERAL (
-        SELECT st."fitId", st."margin", st."distance", st."flags", st."suspicion", st."detail", f."revisionNumber"
-        FROM "Standing" st JOIN "Fit" f ON f."id" = st."fitId"
-        WHERE st."sampleId" = i."sampleId" AND f."status" = 'done'
+        ${doneStandingsOfSql(Prisma.sql`i."sampleId"`)}
         ORDER BY f."revisionNumber" DESC, f."createdAt" DESC LIMIT 1) st ON TRUE`;
 }
 
